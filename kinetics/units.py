@@ -92,18 +92,23 @@ _TABLE: dict[str, tuple[str, float, float]] = {
     "%": _u("dimensionless", 0.01), "1": _u("dimensionless", 1.0), "-": _u("dimensionless", 1.0),
 }
 
-_SPACES = re.compile(r"\s+")
-
-
 def _normalise(symbol: str) -> str:
-    s = _SPACES.sub("", str(symbol)).lower()
-    s = s.replace("deg.c", "degc").replace("per", "/").replace("·", "")
-    s = s.replace("^-1", "^-1")
-    # "W g-1" -> "w/g"; "K min-1" -> "k/min"
-    m = re.fullmatch(r"([a-zµμå°º]+)([a-zµμå°º]+)-1", s)
-    if m:
-        s = f"{m.group(1)}/{m.group(2)}"
-    return s
+    s = str(symbol).strip().lower()
+    s = s.replace("℃", "°c").replace("deg.c", "degc").replace("·", " ").replace("⋅", " ")
+    s = s.replace("⁻¹", "^-1").replace("⁻³", "^-3").replace("³", "3")
+    s = re.sub(r"\s+per\s+", "/", s)
+    tokens = s.split()
+    # "W g-1" -> "w/g", "K min-1" -> "k/min", "g cm-3" -> "g/cm3", "nm-1" -> "1/nm"
+    num, den = [], []
+    for tok in tokens:
+        m = re.fullmatch(r"(.+?)\^?-([13])", tok)
+        if m and not re.fullmatch(r"[-+]?\d*", m.group(1)):
+            den.append(m.group(1) + ("3" if m.group(2) == "3" else ""))
+        else:
+            num.append(tok)
+    if den:
+        return ("".join(num) or "1") + "/" + "/".join(den)
+    return "".join(tokens)
 
 
 def parse_unit(symbol: str, *, dimension: str | None = None, where: str = "") -> Unit:
@@ -133,7 +138,8 @@ def parse_unit(symbol: str, *, dimension: str | None = None, where: str = "") ->
     dim, factor, offset = _TABLE[key]
     if dimension is not None and dim != dimension:
         raise CrystkinInputError(
-            f"unit '{symbol}' is a {dim.replace('_', ' ')} unit, expected {dimension.replace('_', ' ')}",
+            f"unit '{symbol}' is {_article(dim)} {dim.replace('_', ' ')} unit, expected "
+            f"{dimension.replace('_', ' ')}",
             source=where or None)
     return Unit(str(symbol), dim, factor, offset)
 
@@ -166,6 +172,10 @@ def parse_quantity(text, *, dimension: str, default_unit: str | None = None,
             f"'{text}' has no unit; write it with one, for example '{number:g} "
             f"{_example(dimension)}'", source=where or None)
     return float(parse_unit(symbol, dimension=dimension, where=where).to_si(number))
+
+
+def _article(word: str) -> str:
+    return "an" if word[:1] in "aeiou" else "a"
 
 
 def _example(dimension: str) -> str:

@@ -1,0 +1,1 @@
+"""Analyses: per-run fits and tables across runs, built on prep, models and estimate."""

@@ -85,6 +85,7 @@ _TABLE: dict[str, tuple[str, float, float]] = {
     # growth rate
     "um/s": _u("velocity", 1e-6), "µm/s": _u("velocity", 1e-6), "μm/s": _u("velocity", 1e-6),
     "um/min": _u("velocity", 1e-6 / 60), "µm/min": _u("velocity", 1e-6 / 60),
+    "μm/min": _u("velocity", 1e-6 / 60),
     "m/s": _u("velocity", 1.0),
     # energy per mole
     "j/mol": _u("molar_energy", 1.0), "kj/mol": _u("molar_energy", 1e3),

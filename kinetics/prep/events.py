@@ -19,16 +19,17 @@ deviation. The integration itself (kinetics.prep.isothermal) uses the raw signal
 from __future__ import annotations
 
 from dataclasses import dataclass, field
+from functools import lru_cache
 
 import numpy as np
-from scipy.signal import savgol_coeffs, savgol_filter
+from scipy.signal import savgol_coeffs
 
 from ..errors import CrystkinInputError, check_range
 
 __all__ = [
     "HoldStart", "TransientEnd", "EventWindow", "IsothermalEvents",
-    "robust_noise", "smoothing_points", "smooth", "noise_factor", "find_hold_start", "find_transient_end",
-    "find_event_window", "locate_isothermal_events",
+    "robust_noise", "smoothing_points", "smooth", "noise_factor", "reference_level",
+    "find_hold_start", "find_transient_end", "find_event_window", "locate_isothermal_events",
 ]
 
 _MAD_TO_SD = 1.482602218505602
@@ -201,21 +202,102 @@ def _largest_odd(n):
 
 
 def smooth(y, window: int, *, deriv: int = 0, delta: float = 1.0) -> np.ndarray:
-    """Quadratic Savitzky–Golay smoothing (or its derivative, per unit of ``delta``)."""
+    """Quadratic Savitzky–Golay smoothing (or its derivative, per unit of ``delta``).
+
+    Interior samples use the filter coefficients; the first and last half-windows
+    are evaluated on a quadratic fitted to the first and last ``window`` samples
+    (like ``scipy.signal.savgol_filter(mode="interp")``, whose result it matches).
+    """
     y = np.asarray(y, dtype=float)
     window = min(int(window), _largest_odd(len(y)))
     if window < 3:
         return np.zeros_like(y) if deriv else y.copy()
     order = min(2, window - 1)
-    return savgol_filter(y, window, order, deriv=deriv, delta=delta, mode="interp")
+    c = _coeffs(window, order, deriv, float(delta))
+    out = np.empty_like(y)
+    h = window // 2
+    out[h:len(y) - h] = np.convolve(y, c, mode="valid")
+    head, tail = _edge_operators(window, order, deriv, float(delta))
+    out[:h] = head @ y[:window]
+    out[len(y) - h:] = tail @ y[len(y) - window:]
+    return out
+
+
+@lru_cache(maxsize=64)
+def _edge_operators(window, order, deriv, delta):
+    """Matrices mapping the first/last ``window`` samples to the fitted edge values."""
+    u = np.arange(window, dtype=float)
+    V = np.vander(u, order + 1, increasing=True)
+    P = np.linalg.pinv(V)
+    powers = np.arange(order + 1)
+    if deriv:
+        fact = np.where(powers >= deriv,
+                        np.array([np.prod(np.arange(p - deriv + 1, p + 1)) for p in powers]),
+                        0.0)
+        E = fact * np.where(powers >= deriv, u[:, None] ** np.clip(powers - deriv, 0, None),
+                            0.0) / delta ** deriv
+    else:
+        E = u[:, None] ** powers
+    M = E @ P
+    h = window // 2
+    return M[:h], M[window - h:]
+
+
+@lru_cache(maxsize=64)
+def _coeffs(window, order, deriv, delta):
+    return savgol_coeffs(window, order, deriv=deriv, delta=delta)
 
 
 def noise_factor(window: int, *, deriv: int = 0, delta: float = 1.0) -> float:
     """SD of the filtered value per unit SD of white input noise."""
     if window < 3:
         return 1.0
-    c = savgol_coeffs(window, min(2, window - 1), deriv=deriv, delta=delta)
+    c = _coeffs(int(window), min(2, int(window) - 1), int(deriv), float(delta))
     return float(np.sqrt(np.sum(c ** 2)))
+
+
+def _trend_z(t, y):
+    tc = t - t.mean()
+    sxx = float(np.sum(tc ** 2))
+    if not sxx > 0:
+        return 0.0
+    slope = float(np.sum(tc * (y - y.mean())) / sxx)
+    resid = y - y.mean() - slope * tc
+    se = float(np.sqrt(np.sum(resid ** 2) / max(len(t) - 2, 1) / sxx))
+    return abs(slope) / se if se > 0 else np.inf
+
+
+def reference_level(time, signal, *, first=0) -> tuple[float, str]:
+    """Robust level of a hold's quiet end (or, if the end is still moving, of its start).
+
+    Parameters
+    ----------
+    time : array of shape (n,), s
+    signal : array of shape (n,)
+    first : int
+        Index of the hold start.
+
+    Returns
+    -------
+    level : float
+        Median of the last 20 % (or first 10 %) of the hold, signal units.
+    where : {"end", "start"}
+
+    Notes
+    -----
+    The end of a complete hold is the most reliable level. When a straight line
+    through the last 20 % has a slope of more than 5 standard errors, and more
+    so than one through the first 10 %, the event is probably cut off by the end
+    of the record and the start is used instead.
+    """
+    t = np.asarray(time, dtype=float)[first:]
+    y = np.asarray(signal, dtype=float)[first:]
+    m = max(_MIN_FIT_POINTS, len(y) // 10)
+    z_end = _trend_z(t[-2 * m:], y[-2 * m:])
+    z_start = _trend_z(t[:m], y[:m])
+    if z_end <= 5.0 or z_end <= z_start:
+        return float(np.median(y[-2 * m:])), "end"
+    return float(np.median(y[:m])), "start"
 
 
 def find_hold_start(time, temperature, *, set_temperature, tolerance=0.5, source="") -> HoldStart:
@@ -424,7 +506,8 @@ def find_event_window(time, signal, *, noise, first=0, search_from=None, k=3.0,
             i0, start_method = i_thr, "last threshold crossing before the peak"
         above_at_start = False
     else:
-        i0, start_method, above_at_start = first, "hold start (above threshold throughout)", True
+        i0, start_method, above_at_start = _rising_foot(t, r, first, search_from, ip, w, noise,
+                                                        k)
 
     after = np.flatnonzero(rs[ip:] <= thr)
     cut, reason = False, ""
@@ -443,18 +526,31 @@ def find_event_window(time, signal, *, noise, first=0, search_from=None, k=3.0,
         m = min(n - first, max(_MIN_FIT_POINTS, int((n - first) * tail_fraction)))
         tt, yy = t[-m:], r[-m:]
         tc = tt - tt.mean()
-        sxx = float(np.sum(tc ** 2))
-        slope = float(np.sum(tc * (yy - yy.mean())) / sxx)
-        resid = yy - yy.mean() - slope * tc
-        se = float(np.sqrt(np.sum(resid ** 2) / max(m - 2, 1) / sxx))
+        slope = float(np.sum(tc * (yy - yy.mean())) / np.sum(tc ** 2))
         span = float(tt[-1] - tt[0])
         drop = -slope * span
-        if drop > 5.0 * se * span and drop > 0.02 * height:
+        if drop > 0 and _trend_z(tt, yy) > 5.0 and drop > 0.02 * height:
             cut = True
             reason = (f"the signal is still falling over the last {span:.0f} s "
                       f"(by {drop / height:.1%} of the peak)")
     return EventWindow(float(t[i0]), float(t[i1]), float(t[ip]), i0, i1, ip, height, float(thr),
                        bool(found), start_method, end_method, above_at_start, cut, reason)
+
+
+def _rising_foot(t, r, first, search_from, ip, w, noise, k):
+    """Where the rise to the peak begins, for a signal that is off its reference level."""
+    dt = float(np.median(np.diff(t[first:])))
+    ds = smooth(r[first:], w, deriv=1, delta=dt)
+    thr_d = k * noise * noise_factor(w, deriv=1, delta=dt)
+    a, b = search_from - first, ip - first
+    if b - a >= _MIN_FIT_POINTS:
+        steep = a + int(np.argmax(ds[a:b + 1]))
+        flat = np.flatnonzero(ds[a:steep + 1] <= thr_d)
+        if flat.size and flat[-1] >= _MIN_FIT_POINTS:
+            return (first + a + int(flat[-1]),
+                    "foot of the rising flank (the signal before the event is off the "
+                    "reference level)", False)
+    return first, "hold start (above threshold throughout)", True
 
 
 def locate_isothermal_events(time, temperature, signal, *, set_temperature, baseline=None,
@@ -470,8 +566,7 @@ def locate_isothermal_events(time, temperature, signal, *, set_temperature, base
         Exotherm-positive heat flow (W or W/kg).
     set_temperature : float, K
     baseline : array of shape (n,), optional
-        Baseline to reference the signal to; default the end-of-run level
-        (mean of the last 20 % of the hold).
+        Baseline to reference the signal to; default :func:`reference_level`.
     hold_tolerance : float, K
     k : float
         Event threshold in noise SDs of the smoothed signal.
@@ -498,9 +593,10 @@ def locate_isothermal_events(time, temperature, signal, *, set_temperature, base
     noise = robust_noise(y[ih:])
     w = smooth_points or smoothing_points(n - ih)
     if baseline is None:
-        tail = max(_MIN_FIT_POINTS, int(0.2 * (n - ih)))
-        ref = np.full(n, float(np.mean(y[-tail:])))
-        ref_method = "end-of-run level (mean of the last 20 % of the hold)"
+        level, at = reference_level(t, y, first=ih)
+        ref = np.full(n, level)
+        ref_method = ("end-of-run level (median of the last 20 % of the hold)" if at == "end"
+                      else "start-of-hold level (median of the first 10 %; the end is not flat)")
     else:
         ref = np.asarray(baseline, dtype=float)
         ref_method = "given baseline"
@@ -520,9 +616,10 @@ def locate_isothermal_events(time, temperature, signal, *, set_temperature, base
                                    smooth_points=w)
     if transient.overlaps_event:
         warnings.append(
-            f"the start-up transient overlaps the event: it has not died out "
-            f"({transient.method}) when the event starts at {win.start:.1f} s; the transient end"
-            " is set to the event start and the early conversion includes transient heat")
+            f"the start-up transient overlaps the event: a decay under way at the hold start "
+            f"has not died out ({transient.method}) when the event starts at {win.start:.1f} s; "
+            "the transient end is set to the event start and the early conversion may include "
+            "transient heat")
     prov = {
         "hold_method": hold.method, "hold_reference_temperature_K": hold.reference_temperature,
         "hold_tolerance_K": hold.tolerance,

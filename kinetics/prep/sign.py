@@ -17,7 +17,14 @@ import numpy as np
 
 from ..dataset import RUN_KINDS, Trace
 from ..errors import CrystkinInputError, check_option
-from .events import noise_factor, find_hold_start, robust_noise, smooth, smoothing_points
+from .events import (
+    find_hold_start,
+    noise_factor,
+    reference_level,
+    robust_noise,
+    smooth,
+    smoothing_points,
+)
 
 __all__ = ["ExothermChoice", "detect_exotherm", "orient", "choose_exotherm"]
 
@@ -108,12 +115,14 @@ def detect_exotherm(trace_or_arrays, *, kind=None) -> tuple[str, float]:
 
     Notes
     -----
-    The signal is smoothed and referenced to a robust level: the median of the
-    last 20 % of an isothermal hold (after the hold start, when the temperature
-    shows one), or a line through the medians of the first and last 10 % of a
-    scan. For each direction the score is the largest value u_i that rises
-    above the lowest value before it and the one after it by at least u_i
-    itself (a bump, not a monotone start-up transient). The larger score gives
+    The signal is smoothed and referenced to a robust level: for an isothermal
+    hold (after the hold start, when the temperature shows one) the median of
+    its last 20 %, or of its first 10 % when the end is still moving
+    (:func:`~kinetics.prep.events.reference_level`); for a scan a line through
+    the medians of its first and last 10 %. For each direction the score is
+    the largest value u_i that rises above the lowest value before it and the
+    one after it by at least u_i itself (a bump, not a monotone start-up
+    transient). The larger score gives
     the direction of the dominant event: the crystallization exotherm for
     holds and cooling runs, the melting endotherm for heating runs (so the
     exotherm direction is the opposite one). With s_1 >= s_2 the scores,
@@ -139,7 +148,7 @@ def detect_exotherm(trace_or_arrays, *, kind=None) -> tuple[str, float]:
     sigma_s = robust_noise(q, tail_fraction=1.0) * noise_factor(w)
     m = max(5, len(q) // 10)
     if kind == "isothermal":
-        ref = np.full_like(qs, np.median(qs[-2 * m:]))
+        ref = np.full_like(qs, reference_level(t, qs)[0])
     else:
         t_a, t_b = np.median(t[:m]), np.median(t[-m:])
         y_a, y_b = np.median(qs[:m]), np.median(qs[-m:])

@@ -35,8 +35,8 @@ class Diagnostics:
     Attributes
     ----------
     converged : bool
-        Chain length >= ``tau_factor`` x max autocorrelation time and the
-        estimate of tau stable to 10 % between checks.
+        Chain length >= ``tau_factor`` x max integrated autocorrelation time,
+        tau estimated on the chain after its first fifth.
     reason : str
         Plain statement of the outcome.
     n_steps, burn_in, thin, n_walkers, n_draws : int
@@ -347,7 +347,6 @@ def sample_posterior(problem: FitProblem, *, seed: int = 0, start: LeastSquaresR
         bar = tqdm(total=max_steps, desc=progress if isinstance(progress, str) else problem.name,
                    leave=False, disable=None)
     state = emcee.State(p0, log_prob=lp0)
-    tau_old = None
     converged = False
     reason = ""
     tau = np.full(ndim, np.nan)
@@ -361,20 +360,18 @@ def sample_posterior(problem: FitProblem, *, seed: int = 0, start: LeastSquaresR
         if steps < min_steps:
             continue
         chain = sampler.get_chain()
-        tau = emcee.autocorr.integrated_time(chain[steps // 3:], c=5, tol=0, quiet=True)
+        tau = emcee.autocorr.integrated_time(chain[steps // 5:], c=5, tol=0, quiet=True)
         tmax = float(np.nanmax(tau)) if np.all(np.isfinite(tau)) else np.inf
-        stable = tau_old is not None and np.all(np.abs(tau - tau_old) <= 0.1 * tau)
-        if steps >= tau_factor * tmax and stable:
+        if steps >= tau_factor * tmax:
             converged = True
             reason = (f"converged: {steps} steps = {steps / tmax:.0f} x max autocorrelation "
                       f"time ({tmax:.1f} steps)")
             break
-        tau_old = tau
     if bar is not None:
         bar.close()
     chain = sampler.get_chain()
     if not np.all(np.isfinite(tau)):
-        tau = emcee.autocorr.integrated_time(chain[steps // 3:], c=5, tol=0, quiet=True)
+        tau = emcee.autocorr.integrated_time(chain[steps // 5:], c=5, tol=0, quiet=True)
     tmax = float(np.nanmax(tau)) if np.all(np.isfinite(tau)) else float(steps)
     if not converged:
         reason = (f"NOT converged: {steps} steps is {steps / tmax:.0f} x the max autocorrelation "

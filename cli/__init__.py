@@ -1,0 +1,1 @@
+"""The crystkin command line (installed as the package ``crystkin_cli``)."""

@@ -1,0 +1,244 @@
+"""crystkin command line: parse, call the library, print.
+
+Exit codes: 0 success; 1 finished, but some runs could not be analysed (listed);
+2 a user mistake (bad file, bad option): one line on stderr says what and how to fix.
+"""
+
+from __future__ import annotations
+
+import sys
+import time
+from pathlib import Path
+
+import click
+
+EXIT_PARTIAL = 1
+EXIT_USER_ERROR = 2
+
+
+def _version() -> str:
+    from importlib.metadata import PackageNotFoundError, version
+    try:
+        return version("crystkin")
+    except PackageNotFoundError:
+        return "unknown"
+
+
+def _fail(message: str) -> None:
+    click.echo(f"crystkin: error: {message}", err=True)
+    sys.exit(EXIT_USER_ERROR)
+
+
+def _progress(message: str) -> None:
+    click.echo(f"  {message}", err=True)
+
+
+class _Guard:
+    """Turn user-input errors into one-line messages (never a traceback)."""
+
+    def __enter__(self):
+        import warnings
+
+        from kinetics.errors import DataQualityWarning
+        # data-quality findings are recorded in the tables and the report
+        warnings.simplefilter("ignore", DataQualityWarning)
+        return self
+
+    def __exit__(self, exc_type, exc, tb):
+        from kinetics.errors import CrystkinInputError
+        if exc_type is not None and issubclass(exc_type, CrystkinInputError):
+            _fail(str(exc))
+        if exc_type is not None and issubclass(exc_type, (FileNotFoundError, PermissionError,
+                                                          IsADirectoryError)):
+            _fail(f"{exc.strerror}: {exc.filename}")
+        return False
+
+
+def _executor(jobs: int):
+    if jobs <= 1:
+        return None
+    import multiprocessing as mp
+    from concurrent.futures import ProcessPoolExecutor
+    return ProcessPoolExecutor(max_workers=jobs, mp_context=mp.get_context("spawn"))
+
+
+def _finish(analysis, out: Path) -> None:
+    import pandas as pd
+
+    summary = analysis.summary
+    if not summary.empty:
+        with pd.option_context("display.width", 160, "display.max_columns", 20,
+                               "display.float_format", "{:.4g}".format):
+            click.echo(summary.to_string(index=False))
+    click.echo(f"\nResults written to {out} (report.md, tables/, figures/, draws/) "
+               f"in {analysis.seconds:.1f} s.")
+    if analysis.failures:
+        click.echo(f"\n{len(analysis.failures)} run(s) could not be analysed:", err=True)
+        for run, msg in analysis.failures:
+            click.echo(f"  - {run}: {msg}", err=True)
+        sys.exit(EXIT_PARTIAL)
+
+
+@click.group(context_settings={"help_option_names": ["-h", "--help"]})
+@click.version_option(_version(), prog_name="crystkin")
+def main():
+    """crystkin: polymer crystallization kinetics from raw DSC runs, with honest uncertainty."""
+
+
+def _common(f):
+    f = click.option("--seed", default=0, show_default=True, type=int,
+                     help="Seed of every random choice (same seed, same numbers).")(f)
+    f = click.option("--jobs", default=1, show_default=True, type=click.IntRange(1, 64),
+                     help="Runs fitted in parallel processes.")(f)
+    f = click.option("--overwrite", is_flag=True,
+                     help="Replace an existing output folder written by crystkin.")(f)
+    f = click.option("--fast", is_flag=True,
+                     help="Least squares only (no posterior sampling): a quick first look.")(f)
+    return f
+
+
+@main.command()
+@click.option("--out", type=click.Path(path_type=Path), default=Path("crystkin-demo"),
+              show_default=True, help="Output folder (created; must not exist unless --overwrite).")
+@click.option("--quick", is_flag=True, help="A smaller demo study (fewer runs).")
+@_common
+def demo(out, quick, seed, jobs, overwrite, fast):
+    """Generate the built-in INVENTED demo study and analyse it end to end."""
+    with _Guard():
+        import tempfile
+
+        from kinetics.demo import write_demo_study
+        from kinetics.io import read_study
+        from kinetics.workflow import analyse_study, write_study
+
+        click.echo("crystkin demo: invented PX-40 nucleating-agent screening (no real data).",
+                   err=True)
+        with tempfile.TemporaryDirectory(prefix="crystkin-demo-") as tmp:
+            study_file = write_demo_study(Path(tmp) / "input", seed=seed, quick=quick)
+            study = read_study(study_file)
+            click.echo(f"  {len(study.traces)} runs generated; fitting...", err=True)
+            ex = _executor(jobs)
+            try:
+                analysis = analyse_study(study, seed=seed, executor=ex, sample=not fast,
+                                         progress=_progress)
+            finally:
+                if ex is not None:
+                    ex.shutdown()
+
+            def copy_inputs(dest):
+                import shutil
+                shutil.copytree(Path(tmp) / "input", dest)
+            write_study(analysis, out, overwrite=overwrite,
+                        extra_files={"demo_input": copy_inputs})
+        _finish(analysis, out)
+
+
+@main.command()
+@click.argument("study_file", type=click.Path(path_type=Path, dir_okay=False))
+@click.option("--out", type=click.Path(path_type=Path), required=True,
+              help="Output folder (created; must not exist unless --overwrite).")
+@_common
+def analyze(study_file, out, seed, jobs, overwrite, fast):
+    """Analyse every run of a study file (TOML) and write tables, figures and a report."""
+    with _Guard():
+        from kinetics.io import read_study
+        from kinetics.workflow import analyse_study, write_study
+
+        if not study_file.exists():
+            _fail(f"{study_file}: study file not found; check the path")
+        study = read_study(study_file)
+        click.echo(f"crystkin: {len(study.traces)} runs read from {study_file}", err=True)
+        ex = _executor(jobs)
+        try:
+            analysis = analyse_study(study, seed=seed, executor=ex, sample=not fast,
+                                     progress=_progress)
+        finally:
+            if ex is not None:
+                ex.shutdown()
+        write_study(analysis, out, overwrite=overwrite)
+        _finish(analysis, out)
+
+
+@main.command()
+@click.argument("file", type=click.Path(path_type=Path, dir_okay=False))
+@click.option("--kind", type=click.Choice(["isothermal", "cooling", "heating"]), default=None,
+              help="Temperature programme (default: guessed from the temperature column).")
+@click.option("--temperature", default=None, help='Hold temperature, e.g. "125 degC".')
+@click.option("--rate", default=None, help='Cooling or heating rate, e.g. "10 K/min".')
+@click.option("--mass", default=None, help='Sample mass, e.g. "5.2 mg".')
+@click.option("--exotherm", type=click.Choice(["up", "down"]), default=None,
+              help="Sign convention of the file (default: detected).")
+def peek(file, kind, temperature, rate, mass, exotherm):
+    """Show what crystkin detects in one raw file: columns, units, sign, windows, enthalpy."""
+    with _Guard():
+        from kinetics.dataset import RunInfo
+        from kinetics.io import read_trace
+        from kinetics.units import celsius, parse_quantity
+
+        if not file.exists():
+            _fail(f"{file}: file not found; check the path")
+        trace = read_trace(file)
+        info = trace.info
+        changes = {}
+        if kind:
+            changes["kind"] = kind
+        if temperature:
+            changes["temperature"] = parse_quantity(temperature, dimension="temperature")
+        if rate:
+            changes["rate"] = parse_quantity(rate, dimension="rate")
+        if mass:
+            changes["mass"] = parse_quantity(mass, dimension="mass")
+        if exotherm:
+            changes["exotherm"] = exotherm
+        if changes:
+            fields = {**info.__dict__, **changes}
+            fields.pop("extra", None)
+            trace = read_trace(file, info=RunInfo(**fields))
+            info = trace.info
+        click.echo(f"file:        {file}")
+        click.echo(f"rows:        {info.rows[0]}-{info.rows[1]} ({trace.n_points} points)")
+        cols = info.extra.get("columns") if info.extra else None
+        if cols:
+            click.echo("columns:     " + ", ".join(f"{k} = {v}" for k, v in cols.items()))
+        units = info.extra.get("units") if info.extra else None
+        if units:
+            click.echo("units:       " + ", ".join(f"{k} [{v}]" for k, v in units.items()))
+        click.echo(f"time:        {trace.time[0]:.1f} to {trace.time[-1]:.1f} s")
+        click.echo(f"temperature: {celsius(trace.temperature.min()):.2f} to "
+                   f"{celsius(trace.temperature.max()):.2f} °C")
+        click.echo(f"kind:        {info.kind}"
+                   + (f" at {celsius(info.temperature):.2f} °C" if info.temperature else "")
+                   + (f", {info.rate * 60:.3g} K/min" if info.rate else ""))
+        click.echo(f"mass:        {info.mass * 1e6:.3f} mg" if info.mass else
+                   "mass:        unknown (enthalpy in J; give --mass for J/g)")
+        if info.kind == "isothermal":
+            from kinetics.prep import prepare_isothermal
+            conv = prepare_isothermal(trace)
+        elif info.kind == "cooling":
+            try:
+                from kinetics.prep.cooling import prepare_cooling
+            except ImportError:
+                _fail("cooling-run preparation is not available in this version")
+            conv = prepare_cooling(trace)
+        else:
+            click.echo("heating run: melting analysis is shown by 'crystkin analyze'")
+            return
+        click.echo(f"exotherm:    {conv.exotherm}"
+                   + (" (given)" if info.exotherm else " (detected from the data)"))
+        click.echo(f"hold start:  {conv.hold_start:.1f} s; start-up transient ends "
+                   f"{conv.transient_end:.1f} s")
+        click.echo(f"event:       {conv.window[0]:.1f} to {conv.window[1]:.1f} s; induction "
+                   f"time {conv.induction_time:.1f} s")
+        click.echo(f"baseline:    {conv.baseline.get('method')}")
+        if conv.specific_enthalpy:
+            click.echo(f"enthalpy:    {conv.enthalpy / 1e3:.2f} J/g")
+        else:
+            click.echo(f"enthalpy:    {conv.enthalpy * 1e3:.4g} mJ (no mass given)")
+        click.echo(f"half-time:   {conv.time_at(0.5) - conv.window[0]:.1f} s after the event "
+                   "start (measured from the curve)")
+        for w in conv.warnings:
+            click.echo(f"warning:     {w}")
+
+
+if __name__ == "__main__":
+    main()

@@ -1,0 +1,1 @@
+"""Exports: tidy tables and posterior draws on disk, and the simulation input."""

@@ -1,0 +1,1 @@
+"""Figures, rendered tables and report files (the only layer that imports matplotlib)."""

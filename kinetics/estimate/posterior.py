@@ -323,7 +323,7 @@ def sample_posterior(problem: FitProblem, *, seed: int = 0, start: LeastSquaresR
     lo = np.array([p.prior.support[0] for p in params])
     hi = np.array([p.prior.support[1] for p in params])
     p0 = centre + scale * rng.standard_normal((nw, ndim))
-    p0 = np.clip(p0, lo + 1e-12 * np.abs(lo), hi - 1e-12 * np.abs(hi))
+    p0 = np.clip(p0, lo + 1e-12 * np.abs(np.nan_to_num(lo)), hi - 1e-12 * np.abs(np.nan_to_num(hi)))
     lp0 = logp(p0)
     for _ in range(50):
         bad = ~np.isfinite(lp0)

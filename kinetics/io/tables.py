@@ -132,7 +132,8 @@ def read_trace(path, *, info: RunInfo | None = None, columns: dict | None = None
     _check_options(where, columns, units, decimal, max_rows)
     table = _load(path, where, decimal=decimal, sheet=sheet, max_rows=max_rows)
     header = _locate_header(table, where)
-    names = [c or f"column {j + 1}" for j, c in enumerate(table.cells(header.names_row))]
+    names = [c or f"column {j + 1}"
+             for j, c in enumerate(_header_cells(table, header.names_row, header.first_data))]
     labels = [_split_header(c) for c in names]
     if header.units_row is not None:
         unit_cells = table.cells(header.units_row)
@@ -150,7 +151,8 @@ def read_trace(path, *, info: RunInfo | None = None, columns: dict | None = None
     first = header.first_data
     last = table.n_rows - 1
     role_cols = [j for j in roles.values() if j is not None]
-    while last >= first and all(not table.cell(last, j) for j in role_cols):
+    while last >= first and (table.is_blank(last)
+                             or all(not table.cell(last, j) for j in role_cols)):
         last -= 1
     n = last - first + 1
     if n <= 0:
@@ -249,7 +251,7 @@ class _Table:
 
     def __init__(self, lines=None, delimiter=None, grid=None, numbers=None, decimal="."):
         self._lines = lines
-        self._delimiter = delimiter
+        self.delimiter = delimiter
         self._grid = grid
         self._numbers = numbers
         self._cache: dict[int, list[str]] = {}
@@ -261,7 +263,7 @@ class _Table:
             return self._grid[i]
         row = self._cache.get(i)
         if row is None:
-            row = [c.strip() for c in _split(self._lines[i], self._delimiter)]
+            row = [c.strip() for c in _split(self._lines[i], self.delimiter)]
             if len(self._cache) < 10_000:
                 self._cache[i] = row
         return row
@@ -525,6 +527,17 @@ def _locate_header(table: _Table, where: str) -> _Header:
         "no header row naming the columns above the data; add one line such as "
         "'Time (min),Temperature (degC),Heat flow (mW)' above the first data row",
         source=where, row=table.row_number(first_data_like))
+
+
+def _header_cells(table: _Table, row: int, first_data: int) -> list[str]:
+    cells = table.cells(row)
+    if table.delimiter is None:
+        # blank-separated files: names may contain single blanks ("Heat flow (mW)")
+        wide = [c.strip() for c in re.split(r"\t| {2,}", table.raw(row).strip())]
+        if len(wide) == len(table.cells(first_data)) or len(cells) != len(
+                table.cells(first_data)):
+            return wide
+    return cells
 
 
 def _previous_nonblank(table, i):

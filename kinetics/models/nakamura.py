@@ -170,8 +170,8 @@ def nakamura_constant_rate(T, *, T0, beta, n, K_of_T, n_grid=20001):
     X = 1 - exp(-[(1/beta) integral_T^T0 K(T') dT']^n) (Nakamura et al. 1972;
     at constant rate this is Ozawa's 1 - exp(-K_oz(T)/beta^n), Ozawa 1971).
     """
-    I = _temperature_integral(T, T0=T0, K_of_T=K_of_T, n_grid=n_grid)
-    return -np.expm1(-np.power(I / float(beta), n))
+    integral = _temperature_integral(T, T0=T0, K_of_T=K_of_T, n_grid=n_grid)
+    return -np.expm1(-np.power(integral / float(beta), n))
 
 
 def ozawa_K_from_nakamura(T, *, T0, n, K_of_T, n_grid=20001):
@@ -181,5 +181,5 @@ def ozawa_K_from_nakamura(T, *, T0, n, K_of_T, n_grid=20001):
     -----
     With beta in K/min instead of K/s, multiply by 60^n.
     """
-    I = _temperature_integral(T, T0=T0, K_of_T=K_of_T, n_grid=n_grid)
-    return np.power(I, n)
+    integral = _temperature_integral(T, T0=T0, K_of_T=K_of_T, n_grid=n_grid)
+    return np.power(integral, n)

@@ -119,12 +119,12 @@ def polynomial_baseline(x, y, *, order=1, anchors=None, exclude=None):
         raise CrystkinInputError(
             f"The 'order' parameter of {where} must be one of [0, 1, 2]. Got {order!r} instead.")
     x, y = _xy(x, y, where)
-    mask = region_mask(x, anchors)
+    anchors_p = _pairs(anchors, "anchors", where)
     ex = _pairs(exclude, "exclude", where)
+    mask = region_mask(x, anchors_p)
     if ex is not None:
         mask &= ~region_mask(x, ex)
     values, params = _fit(x, y, mask, order, where)
-    anchors_p = _pairs(anchors, "anchors", where)
     params = {"method": "polynomial", **params,
               "anchors": None if anchors_p is None else anchors_p.tolist(),
               "exclude": None if ex is None else ex.tolist()}
@@ -197,8 +197,8 @@ def sigmoidal_baseline(x, y, *, window, pre, post, max_iter=20, tol=1e-6, pre_or
     Notes
     -----
     B(x) = (1 - X(x)) L_pre(x) + X(x) L_post(x), where X is the fraction of the
-    area of y - B accumulated along ``x`` (trapezoidal rule, in record order, made
-    non-decreasing and clipped to [0, 1] for the weighting). The iteration starts
+    area of y - B accumulated along ``x`` in record order (trapezoidal rule over
+    |dx|, made non-decreasing and clipped to [0, 1] for the weighting). The iteration starts
     from a straight line between L_pre(a) and L_post(b) and repeats until
     max |X_new - X_old| < tol or ``max_iter`` is reached. On a scan the
     accumulation along temperature equals that along time for a constant rate.
@@ -227,17 +227,20 @@ def sigmoidal_baseline(x, y, *, window, pre, post, max_iter=20, tol=1e-6, pre_or
     frac = (xs - xs[0]) / (xs[-1] - xs[0])
     B = (1.0 - frac) * lp[0] + frac * lq[-1]
     X = np.zeros_like(xs)
+    direction = 1.0 if xs[-1] > xs[0] else -1.0
+    scale = float(np.abs(cumulative_trapezoid(np.abs(ys), xs)[-1]))
     change = np.inf
     iteration = 0
     converged = False
     while iteration < int(max_iter) and not converged:
         iteration += 1
-        c = cumulative_trapezoid(ys - B, xs)
+        c = direction * cumulative_trapezoid(ys - B, xs)
         total = c[-1]
-        if total == 0 or not np.isfinite(total):
+        if not total > 1e-9 * scale:
             raise CrystkinInputError(
-                f"{where}: the corrected signal has no net area in the window "
-                f"{win[0].tolist()}; check the window and the exotherm sign")
+                f"{where}: the corrected signal has no positive area in the window "
+                f"{win[0].tolist()}; check the window and the exotherm sign (y must be "
+                "exotherm-positive)")
         X_new = np.clip(np.maximum.accumulate(c / total), 0.0, 1.0)
         change = float(np.max(np.abs(X_new - X)))
         X = X_new

@@ -107,6 +107,9 @@ class EventWindow:
         the peak (the onset was not recorded).
     cut_off : bool
     cut_off_reason : str
+    onset_power : float
+        Exponent p of the power law fitted to the foot of the peak (nan if none;
+        for Avrami kinetics close to n - 1).
     """
 
     start: float
@@ -123,6 +126,7 @@ class EventWindow:
     above_threshold_at_start: bool
     cut_off: bool
     cut_off_reason: str = ""
+    onset_power: float = float("nan")
 
 
 @dataclass(frozen=True)
@@ -475,9 +479,19 @@ def find_event_window(time, signal, *, noise, first=0, search_from=None, k=3.0,
     The peak is the maximum of the smoothed signal after ``search_from``. From it
     the search runs backwards to the last sample at or below k sigma_s
     (sigma_s = sigma sqrt(sum c_j^2) for filter coefficients c_j), then on to the
-    last sample at or below zero, which is the event start; forwards likewise
-    for the end. The event counts as found when the peak exceeds max(2k, 6)
-    sigma_s. It counts as cut off when the signal never returns below the
+    last sample at or below zero; forwards likewise for the end. The event
+    start is then refined by fitting a (t - t_on)_+^p (a by linear least
+    squares, t_on and p on a grid) to the raw signal from well before the
+    threshold crossing up to 20 % of the peak: the onset t_on of the foot, not
+    the later time at which it clears the noise. Without a usable fit the
+    baseline crossing is kept. If the signal never falls to the threshold
+    before the peak (it sits off the reference level, or the event was under
+    way from the start), the start is the foot of the rising flank: the last
+    sample before the steepest rise whose smoothed slope is at most k noise SDs
+    of the slope, provided at least 10 samples lie between it and
+    ``search_from``; otherwise the start is ``first`` and
+    ``above_threshold_at_start`` is True. The event counts as found when the
+    peak exceeds max(2k, 6) sigma_s. It counts as cut off when the signal never returns below the
     threshold, or when a line fitted to the end-of-run fraction falls by more
     than 5 standard errors and more than 2 % of the peak.
     """
@@ -497,6 +511,7 @@ def find_event_window(time, signal, *, noise, first=0, search_from=None, k=3.0,
     found = height > max(2.0 * k, 6.0) * sigma_s
 
     below = np.flatnonzero(rs[first:ip + 1] <= thr)
+    t_start, power = None, float("nan")
     if below.size:
         i_thr = first + int(below[-1])
         zero = np.flatnonzero(rs[first:i_thr + 1] <= 0.0)
@@ -505,6 +520,11 @@ def find_event_window(time, signal, *, noise, first=0, search_from=None, k=3.0,
         else:
             i0, start_method = i_thr, "last threshold crossing before the peak"
         above_at_start = False
+        fitted = _power_onset(t, r, rs, first, i_thr, ip, height, thr, w)
+        if fitted is not None:
+            t_start, power = fitted
+            i0 = max(first, int(np.searchsorted(t, t_start, side="right")) - 1)
+            start_method = "onset of a power law a (t - t_on)^p fitted to the foot of the peak"
     else:
         i0, start_method, above_at_start = _rising_foot(t, r, first, search_from, ip, w, noise,
                                                         k)
@@ -533,8 +553,36 @@ def find_event_window(time, signal, *, noise, first=0, search_from=None, k=3.0,
             cut = True
             reason = (f"the signal is still falling over the last {span:.0f} s "
                       f"(by {drop / height:.1%} of the peak)")
-    return EventWindow(float(t[i0]), float(t[i1]), float(t[ip]), i0, i1, ip, height, float(thr),
-                       bool(found), start_method, end_method, above_at_start, cut, reason)
+    return EventWindow(float(t[i0]) if t_start is None else float(t_start), float(t[i1]),
+                       float(t[ip]), i0, i1, ip, height, float(thr), bool(found), start_method,
+                       end_method, above_at_start, cut, reason, power)
+
+
+def _power_onset(t, r, rs, first, i_thr, ip, height, thr, w, max_points=400):
+    """Onset t_on (and power p) of a (t - t_on)_+^p fitted to the foot of the peak, or None."""
+    rise = np.flatnonzero(rs[i_thr:ip + 1] >= max(0.2 * height, 2.0 * thr))
+    i_top = i_thr + (int(rise[0]) if rise.size else ip - i_thr)
+    span = max(i_top - i_thr, w)
+    i_lo = max(first, i_thr - 2 * span)
+    if i_top - i_lo < _MIN_FIT_POINTS or i_thr - i_lo < 2:
+        return None
+    tt, yy = t[i_lo:i_top + 1], r[i_lo:i_top + 1]
+    if tt.size > max_points:
+        edges = np.linspace(0, tt.size, max_points + 1).astype(int)
+        counts = np.diff(edges)
+        tt = np.add.reduceat(tt, edges[:-1]) / counts
+        yy = np.add.reduceat(yy, edges[:-1]) / counts
+    t_on = np.linspace(t[i_lo], t[i_thr], 81)[:, None, None]
+    p = np.geomspace(0.25, 6.0, 29)[None, :, None]
+    f = np.clip(tt[None, None, :] - t_on, 0.0, None) ** p
+    sff = np.sum(f * f, axis=2)
+    sfy = np.sum(f * yy[None, None, :], axis=2)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        sse = np.where((sff > 0) & (sfy > 0), np.sum(yy ** 2) - sfy ** 2 / sff, np.inf)
+    j, m = np.unravel_index(int(np.argmin(sse)), sse.shape)
+    if not np.isfinite(sse[j, m]) or j == 0:
+        return None
+    return float(t_on[j, 0, 0]), float(p[0, m, 0])
 
 
 def _rising_foot(t, r, first, search_from, ip, w, noise, k):
@@ -631,6 +679,7 @@ def locate_isothermal_events(time, temperature, signal, *, set_temperature, base
         "transient_decay_time_s": transient.decay_time,
         "window_start_method": win.start_method, "window_end_method": win.end_method,
         "peak_height": win.peak_height, "cut_off_reason": win.cut_off_reason,
+        "event_start_s": win.start, "onset_power": win.onset_power,
     }
     return IsothermalEvents(hold.time, transient.time, win.start, win.end, win.peak_time,
                             noise, hold, transient, win, prov, tuple(warnings))

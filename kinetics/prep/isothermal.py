@@ -198,7 +198,7 @@ def prepare_isothermal(trace, *, window=None, baseline="end", exotherm=None, hol
         run_id=trace.run_id, kind="isothermal", time=ts, temperature=trace.temperature[sl],
         conversion=X, rate=c / area, enthalpy=float(enthalpy), specific_enthalpy=specific,
         window=(float(ts[0]), float(ts[-1])), baseline=provenance, hold_start=ev.hold_start,
-        transient_end=ev.transient_end, induction_time=float(ts[0] - ev.hold_start),
+        transient_end=ev.transient_end, induction_time=float(ev.event_start - ev.hold_start),
         signal=y[sl], baseline_values=B[sl], exotherm=choice.direction, warnings=tuple(found))
 
 

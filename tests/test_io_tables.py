@@ -201,6 +201,15 @@ def test_specific_heat_flow_with_and_without_mass(tmp_path, unit):
                                atol=1e-300)  # W
 
 
+@pytest.mark.parametrize("header", ["HF [W/g]", "Heat flow mW/mg", "Heat flow/W g-1",
+                                    "Heat flow (mW mg-1)", "Normalized heat flow (W/g)"])
+def test_specific_header_spellings(tmp_path, header):
+    f = write(tmp_path / "s.csv", table(f"Time (min),Temperature (°C),{header}", data_rows()))
+    tr = read_trace(f)
+    assert tr.specific
+    np.testing.assert_allclose(tr.heat_flow, Q_MW * 1e3, rtol=1e-15)  # 1 W/g = 1000 W/kg
+
+
 def test_study_mass_wins_over_file_metadata(tmp_path):
     text = "Sample mass: 9 mg\n" + table("Time (min),T (°C),HF (W/g)", data_rows())
     f = write(tmp_path / "m.csv", text)

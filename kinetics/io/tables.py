@@ -168,7 +168,7 @@ def read_trace(path, *, info: RunInfo | None = None, columns: dict | None = None
         raise CrystkinInputError(
             f"only {n} data rows (rows {table.row_number(first)}-{table.row_number(last)});"
             " a run needs at least 10", source=where)
-    row_numbers = np.array([table.row_number(i) for i in range(first, last + 1)])
+    row_numbers = table.row_numbers(first, last)
 
     present = {role: j for role, j in roles.items() if j is not None}
     cells = table.columns(list(present.values()), first, last)
@@ -278,6 +278,12 @@ class _Table:
         return row[j] if j < len(row) else ""
 
     def columns(self, js: list[int], first: int, last: int) -> list[list[str]]:
+        if self._lines is not None and self.delimiter is not None:
+            block = self._lines[first:last + 1]
+            d = self.delimiter
+            if not any('"' in line for line in block):
+                rows = [line.split(d) for line in block]
+                return [[r[j] if len(r) > j else "" for r in rows] for j in js]
         out: list[list[str]] = [[] for _ in js]
         for i in range(first, last + 1):
             row = self.cells(i)
@@ -285,6 +291,11 @@ class _Table:
             for col, j in zip(out, js, strict=True):
                 col.append(row[j] if j < n else "")
         return out
+
+    def row_numbers(self, first: int, last: int) -> np.ndarray:
+        if self._numbers is None:
+            return np.arange(first + 1, last + 2)
+        return np.asarray(self._numbers[first:last + 1])
 
     def row_number(self, i: int) -> int:
         return self._numbers[i] if self._numbers is not None else i + 1
@@ -580,19 +591,16 @@ def _split_header(cell: str) -> tuple[str, str | None]:
     m = _BRACKETED.match(text)
     if m and m.group("name"):
         return m.group("name").strip(), (m.group("unit").strip() or None)
-    if "/" in text:
-        left, right = text.split("/", 1)
-        if left.strip() and _is_unit(right.strip()):
-            return left.strip(), right.strip()
-    if "," in text:
-        left, right = text.rsplit(",", 1)
-        if left.strip() and _is_unit(right.strip()):
-            return left.strip(), right.strip()
     parts = text.rsplit(None, 1)
     if len(parts) == 2 and _is_unit(parts[1]):
-        name = re.sub(r"\s+in$", "", parts[0], flags=re.IGNORECASE).strip()
+        name = re.sub(r"(\s+in|\s*[/,])$", "", parts[0], flags=re.IGNORECASE).strip()
         if name:
             return name, parts[1]
+    for sep in ("/", ","):
+        if sep in text:
+            left, right = text.split(sep, 1) if sep == "/" else text.rsplit(sep, 1)
+            if left.strip() and _is_unit(right.strip()):
+                return left.strip(), right.strip()
     return text, None
 
 
@@ -680,12 +688,13 @@ def _numeric_column(table: _Table, cells: list[str], j: int, first: int, name: s
     if table.decimal == ",":
         cells = [c.replace(",", ".") for c in cells]
     try:
-        values = np.asarray(cells, dtype=np.str_).astype(np.float64)
+        values = np.fromiter(map(float, cells), dtype=np.float64, count=len(cells))
     except ValueError:
         values = None
     if values is not None and np.all(np.isfinite(values)):
         return values
     for k, c in enumerate(cells):
+        c = c.strip()
         ok = _NUMBER.fullmatch(c) is not None
         if ok and values is not None and not np.isfinite(values[k]):
             ok = False

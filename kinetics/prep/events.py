@@ -558,7 +558,7 @@ def find_event_window(time, signal, *, noise, first=0, search_from=None, k=3.0,
                        end_method, above_at_start, cut, reason, power)
 
 
-def _power_onset(t, r, rs, first, i_thr, ip, height, thr, w, max_points=400):
+def _power_onset(t, r, rs, first, i_thr, ip, height, thr, w, max_points=250):
     """Onset t_on (and power p) of a (t - t_on)_+^p fitted to the foot of the peak, or None."""
     rise = np.flatnonzero(rs[i_thr:ip + 1] >= max(0.2 * height, 2.0 * thr))
     i_top = i_thr + (int(rise[0]) if rise.size else ip - i_thr)
@@ -572,17 +572,37 @@ def _power_onset(t, r, rs, first, i_thr, ip, height, thr, w, max_points=400):
         counts = np.diff(edges)
         tt = np.add.reduceat(tt, edges[:-1]) / counts
         yy = np.add.reduceat(yy, edges[:-1]) / counts
-    t_on = np.linspace(t[i_lo], t[i_thr], 81)[:, None, None]
-    p = np.geomspace(0.25, 6.0, 29)[None, :, None]
-    f = np.clip(tt[None, None, :] - t_on, 0.0, None) ** p
+    lo, hi = float(t[i_lo]), float(t[i_thr])
+    step_t = (hi - lo) / 20
+    log_p = np.log(np.geomspace(0.25, 6.0, 13))
+    step_p = log_p[1] - log_p[0]
+    best = None
+    for _ in range(3):  # grid, then two finer grids around the best point
+        t_on = np.linspace(lo, hi, 21)
+        p = np.exp(log_p)
+        sse = _power_sse(tt, yy, t_on, p)
+        j, m = np.unravel_index(int(np.argmin(sse)), sse.shape)
+        if not np.isfinite(sse[j, m]):
+            return None
+        best = (float(t_on[j]), float(p[m]))
+        if best[0] <= float(t[i_lo]):
+            return None
+        lo, hi = best[0] - step_t, min(best[0] + step_t, float(t[i_thr]))
+        log_p = np.linspace(np.log(best[1]) - step_p, np.log(best[1]) + step_p, 13)
+        step_t, step_p = (hi - lo) / 20, log_p[1] - log_p[0]
+    return best
+
+
+def _power_sse(tt, yy, t_on, p):
+    """Residual sum of squares of a (t - t_on)_+^p, a by least squares, on a (t_on, p) grid."""
+    tau = tt[None, :] - t_on[:, None]
+    pos = tau > 0
+    log_tau = np.log(np.where(pos, tau, 1.0))
+    f = np.where(pos[:, None, :], np.exp(p[None, :, None] * log_tau[:, None, :]), 0.0)
     sff = np.sum(f * f, axis=2)
-    sfy = np.sum(f * yy[None, None, :], axis=2)
+    sfy = f @ yy
     with np.errstate(divide="ignore", invalid="ignore"):
-        sse = np.where((sff > 0) & (sfy > 0), np.sum(yy ** 2) - sfy ** 2 / sff, np.inf)
-    j, m = np.unravel_index(int(np.argmin(sse)), sse.shape)
-    if not np.isfinite(sse[j, m]) or j == 0:
-        return None
-    return float(t_on[j, 0, 0]), float(p[0, m, 0])
+        return np.where((sff > 0) & (sfy > 0), np.sum(yy ** 2) - sfy ** 2 / sff, np.inf)
 
 
 def _rising_foot(t, r, first, search_from, ip, w, noise, k):

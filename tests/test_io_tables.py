@@ -13,7 +13,7 @@ import numpy as np
 import pytest
 
 from kinetics.dataset import RunInfo, Trace
-from kinetics.errors import CrystkinInputError
+from kinetics.errors import CrystkinInputError, DataQualityWarning
 from kinetics.io.tables import read_trace
 
 N = 20
@@ -214,11 +214,20 @@ def test_study_mass_wins_over_file_metadata(tmp_path):
     text = "Sample mass: 9 mg\n" + table("Time (min),T (°C),HF (W/g)", data_rows())
     f = write(tmp_path / "m.csv", text)
     info = RunInfo("iso", "isothermal", temperature=398.15, mass=5e-6, group="neat")
-    tr = read_trace(f, info=info)
+    with pytest.warns(DataQualityWarning, match="9 mg"):
+        tr = read_trace(f, info=info)
+    assert "study file's value is used" in tr.info.extra["warnings"][0]
     assert tr.info.mass == 5e-6
     assert tr.info.extra["file_mass"] == pytest.approx(9e-6)
     assert tr.info.group == "neat" and tr.info.run_id == "iso"
     np.testing.assert_allclose(tr.heat_flow, Q_MW * 1e3 * 5e-6, rtol=1e-14, atol=1e-300)
+
+
+def test_header_with_hash_and_slash_bracket_units(tmp_path):
+    f = write(tmp_path / "h.txt", table("##Time/min;Temp./°C;DSC/(mW/mg)", data_rows(), sep=";"))
+    tr = read_trace(f)
+    assert tr.specific
+    assert_si(tr, q_factor=1e3)
 
 
 def test_columns_and_units_overrides(tmp_path):

@@ -26,13 +26,14 @@ from __future__ import annotations
 
 import csv
 import re
+import warnings
 from dataclasses import replace
 from pathlib import Path
 
 import numpy as np
 
 from ..dataset import RunInfo, Trace
-from ..errors import CrystkinInputError
+from ..errors import CrystkinInputError, DataQualityWarning
 from ..units import Unit, parse_quantity, parse_unit
 
 __all__ = ["read_trace", "ROLES", "EXCEL_SUFFIXES"]
@@ -45,7 +46,7 @@ _EXAMPLE_UNIT = {"time": "min", "temperature": "degC", "heat_flow": "mW"}
 _DIMENSIONS = {"time": ("time",), "temperature": ("temperature",),
                "heat_flow": ("heat_flow", "specific_heat_flow")}
 
-# Header words for each role, compared after lower-casing and turning _ - . into spaces.
+# Header words for each role, compared after lower-casing and turning punctuation into spaces.
 _ROLE_WORDS = {
     "time": ("time", "zeit", "tiempo", "elapsed time", "time elapsed", "run time", "runtime"),
     "temperature": ("temperature", "temp", "ts", "tsample", "t sample", "sample temperature",
@@ -103,14 +104,21 @@ def read_trace(path, *, info: RunInfo | None = None, columns: dict | None = None
         Time in s, temperature in K, heat flow in W; in W/kg with ``specific=True``
         when the file gives a specific heat flow (W/g, mW/mg) and no mass is known.
         ``info.source`` is ``str(path)`` and ``info.rows`` the first and last file
-        row used. ``info.extra["file_metadata"]`` holds the ``key: value`` lines found
-        above the header.
+        row used. ``info.extra`` holds ``file_metadata`` (the ``key: value`` lines found
+        above the header), ``columns`` and ``units`` (what was used for each role),
+        ``file_mass`` (kg, when the file states one), ``temperature_filled``, ``guessed``
+        (kind guessed from the data) and ``warnings``, when they apply.
 
     Raises
     ------
     CrystkinInputError
         For every problem with the file; the message names the file, the row and/or
         column, and what to do.
+
+    Warns
+    -----
+    DataQualityWarning
+        The mass stated in the file differs by more than 2 % from ``info.mass``.
 
     Notes
     -----
@@ -195,6 +203,11 @@ def read_trace(path, *, info: RunInfo | None = None, columns: dict | None = None
              "units": {role: u.symbol for role, u in unit_of.items()}}
     if file_mass is not None:
         extra["file_mass"] = file_mass
+        if mass is not None and abs(file_mass - mass) > 0.02 * mass:
+            note = (f"{where}: the file says the sample mass is {file_mass * 1e6:g} mg, the "
+                    f"study file {mass * 1e6:g} mg; the study file's value is used")
+            warnings.warn(note, DataQualityWarning, stacklevel=2)
+            extra["warnings"] = (note,)
     if roles["temperature"] is not None:
         temperature = unit_of["temperature"].to_si(raw["temperature"])
     elif info is not None and info.kind == "isothermal" and info.temperature is not None:
@@ -599,13 +612,14 @@ def _split_header(cell: str) -> tuple[str, str | None]:
     for sep in ("/", ","):
         if sep in text:
             left, right = text.split(sep, 1) if sep == "/" else text.rsplit(sep, 1)
-            if left.strip() and _is_unit(right.strip()):
-                return left.strip(), right.strip()
+            unit = _strip_brackets(right)
+            if left.strip() and _is_unit(unit):
+                return left.strip(), unit
     return text, None
 
 
 def _normal_name(name: str) -> str:
-    return " ".join(re.sub(r"[_\-.:]+", " ", name).lower().split())
+    return " ".join(re.sub(r"[^\w°]+|_", " ", name).lower().split())
 
 
 def _assign_roles(names, labels, columns, where) -> dict[str, int | None]:

@@ -104,6 +104,34 @@ def _block_average(t, y, max_points):
     return edges, y.reshape(nb, m).mean(axis=1), m
 
 
+@dataclass(frozen=True)
+class AvramiHeatFlowBasis:
+    """Basis of the isothermal heat-flow model (picklable, so fits can run in other processes).
+
+    Columns: cell-averaged Avrami rate (coefficient: area), 1 (b0), t - t_ref (b1),
+    and exp(-(t - t_hold)/tau) (c) when the transient is modelled.
+    Nonlinear parameters theta = (n, t_half, t0[, tau]).
+    """
+
+    edges: np.ndarray
+    t_ref: float
+    hold: float
+    transient: bool
+
+    def __call__(self, theta):
+        m = theta.shape[0]
+        er = self.edges[None, :]
+        centres = 0.5 * (self.edges[1:] + self.edges[:-1])
+        N = len(centres)
+        n = theta[:, 0:1]
+        k = avrami_k_from_half_time(n, theta[:, 1:2])
+        cols = [avrami_cell_rate(er, n, k, theta[:, 2:3]), np.ones((m, N)),
+                np.broadcast_to(centres - self.t_ref, (m, N))]
+        if self.transient:
+            cols.append(np.exp(-(centres[None, :] - self.hold) / theta[:, 3:4]))
+        return [np.stack(cols, axis=1)]
+
+
 def avrami_heat_flow_problem(trace: Trace, conversion: Conversion, *, transient: str = "auto",
                              max_points: int = 400, start: dict | None = None) -> FitProblem:
     """Bind the Avrami heat-flow model to one isothermal run.
@@ -194,20 +222,8 @@ def avrami_heat_flow_problem(trace: Trace, conversion: Conversion, *, transient:
                                 "start-up transient decay time", nuisance=True))
         linear.append(Parameter("c", "signal unit", Uniform(-50 * amp, 50 * amp), None,
                                 "start-up transient amplitude at the hold start", nuisance=True))
-    er = edges[None, :]
-    cr = np.broadcast_to(centres - t_ref, (1, len(centres)))
-    ch = centres[None, :] - hold
-    ones = np.ones((1, len(centres)))
-
-    def basis(theta):
-        m = theta.shape[0]
-        n = theta[:, 0:1]
-        k = avrami_k_from_half_time(n, theta[:, 1:2])
-        cols = [avrami_cell_rate(er, n, k, theta[:, 2:3]),
-                np.broadcast_to(ones, (m, len(centres))), np.broadcast_to(cr, (m, len(centres)))]
-        if use_transient:
-            cols.append(np.exp(-ch / theta[:, 3:4]))
-        return [np.stack(cols, axis=1)]
+    basis = AvramiHeatFlowBasis(edges=edges, t_ref=t_ref, hold=hold,
+                                transient=use_transient)
 
     prov = {"model": "Avrami heat flow, cell-averaged, linear baseline"
                      + (" + decaying transient" if use_transient else ""),

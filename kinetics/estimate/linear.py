@@ -17,7 +17,7 @@ from ..errors import CrystkinInputError
 from ..models.params import Normal, Parameter, Uniform
 from .problem import FitProblem
 
-__all__ = ["LineFit", "fit_line", "line_problem"]
+__all__ = ["LineFit", "LineBasis", "fit_line", "line_problem"]
 
 
 @dataclass(frozen=True)
@@ -46,6 +46,16 @@ class LineFit:
     n: int
     cov: np.ndarray
     residual_sd: float
+
+
+@dataclass(frozen=True)
+class LineBasis:
+    """Fixed design matrix (L, N) as a picklable basis for :class:`FitProblem`."""
+
+    design: np.ndarray
+
+    def __call__(self, theta):
+        return [np.broadcast_to(self.design[None], (theta.shape[0], *self.design.shape))]
 
 
 def fit_line(x, y, *, weights=None, where: str = "fit_line") -> LineFit:
@@ -124,10 +134,7 @@ def line_problem(x, y, *, name: str = "line", sigma=None, slope_name: str = "slo
     i_start = float(np.clip(ls.intercept, *ip.support))
     linear = (Parameter(intercept_name, intercept_unit, ip, i_start),
               Parameter(slope_name, slope_unit, sp, s_start))
-    design = np.vstack([np.ones_like(x), x])[None, :, :]
-
-    def basis(theta):
-        return [np.broadcast_to(design, (theta.shape[0], 2, len(x)))]
+    basis = LineBasis(np.vstack([np.ones_like(x), x]))
 
     return FitProblem(name=name, parameters=(), basis=basis, linear=linear, data=y,
                       noise="estimate" if sig is None else sig,

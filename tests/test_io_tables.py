@@ -128,6 +128,13 @@ def test_utf8_bom_and_crlf(tmp_path):
     assert tr.info.rows == (2, 21)
 
 
+def test_utf16_with_bom(tmp_path):
+    text = table("Time (min)\tTemperature (°C)\tHeat Flow (mW)", data_rows(), sep="\t")
+    f = tmp_path / "wide.txt"
+    f.write_bytes(text.encode("utf-16"))  # Python writes a BOM for "utf-16"
+    assert_si(read_trace(f))
+
+
 def test_whitespace_aligned_text(tmp_path):
     lines = ["Time (min)    Temperature (°C)    Heat Flow (mW)"]
     lines += [f"{a:10.2f}  {b:12.4f}  {c:12.6f}" for a, b, c in data_rows()]

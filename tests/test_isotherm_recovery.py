@@ -90,12 +90,6 @@ def test_least_squares_only_recovers_truth(drifting_run, hand_conversion, how):
     _assert_covers(fit, truth)
 
 
-@pytest.mark.xfail(strict=True, reason=(
-    "transient='auto' cuts the fit at Conversion.transient_end found by prepare_isothermal "
-    "(about 25 s here), where a 10 s start-up transient is still about 5 noise SD; the "
-    "unmodelled tail biases n upwards (95 % coverage of n 45-60 %; with "
-    "transient='model' 100 %). Fix in prepare_isothermal's transient end or in the 'auto' "
-    "rule of avrami_heat_flow_problem."))
 def test_auto_transient_with_prepared_conversion_covers_n(synthetic_run):
     covered = []
     for i in range(20):

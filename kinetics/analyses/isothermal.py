@@ -145,7 +145,8 @@ def avrami_heat_flow_problem(trace: Trace, conversion: Conversion, *, transient:
     transient : {"auto", "model", "cut"}
         "cut" fits from the end of the start-up transient; "model" fits from
         the hold start with a decaying-exponential transient as a nuisance term;
-        "auto" models it when the event begins before the transient has died out.
+        "auto" models it whenever preparation found a transient (cutting at its
+        detected end leaves an unmodelled tail that biases n upwards).
     max_points : int
         Signal is block-averaged to at most this many cells (exact for the
         cell-averaged model; white noise shrinks by sqrt(block size)).
@@ -168,8 +169,8 @@ def avrami_heat_flow_problem(trace: Trace, conversion: Conversion, *, transient:
     hold = conversion.hold_start
     ev_start, ev_end = conversion.window
     dt = float(np.median(np.diff(t_all)))
-    overlap = ev_start < conversion.transient_end + 5 * dt
-    use_transient = transient == "model" or (transient == "auto" and overlap)
+    has_transient = conversion.transient_end > hold + 3 * dt
+    use_transient = transient == "model" or (transient == "auto" and has_transient)
     t_fit0 = hold + 2 * dt if use_transient else conversion.transient_end
     sel = t_all >= t_fit0
     if sel.sum() < 20:

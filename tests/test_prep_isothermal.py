@@ -66,6 +66,17 @@ def test_enthalpy_induction_and_half_time_recovered(seed, baseline, drift):
     assert conv.baseline["method"] == baseline and conv.baseline["fit"]["used"] == baseline
 
 
+def test_hold_reached_after_a_cooling_ramp():
+    # 1 K/s ramp reaching 400 K at 30 s: within 0.5 K from 29.5 s on (hand arithmetic)
+    trace, truth = synthetic_isotherm(**RUN, hold_start=30.0, drift=DRIFT, transient=TRANSIENT,
+                                      seed=5)
+    conv = prepare_quietly(trace, baseline="linear")
+    assert conv.hold_start == pytest.approx(29.5, abs=0.5)
+    assert conv.time[0] > conv.hold_start
+    assert abs(conv.hold_start + conv.induction_time - 90.0) <= 2 * noise_onset_time(truth) + 1
+    assert conv.enthalpy == pytest.approx(90e3, rel=0.02)
+
+
 @pytest.mark.parametrize("seed", [0, 1, 2])
 def test_fast_linear_foot_induction_time_within_a_few_samples(seed):
     # n = 2: the foot rises linearly and the onset is sharp; within 3 sampling intervals
@@ -128,8 +139,9 @@ def test_given_window_is_used():
 def test_conversion_under_way_at_the_hold_start_is_flagged(t0, transient):
     # t0 inside a 15 s transient; or conversion begun 40 s before the hold
     trace, _ = synthetic_isotherm(**{**RUN, "t0": t0}, transient=transient, seed=15)
-    with pytest.warns(DataQualityWarning, match="already under way"):
+    with pytest.warns(DataQualityWarning) as caught:
         conv = prepare_isothermal(trace)
+    assert any("already under way" in str(w.message) for w in caught)
     assert any(w.startswith("conversion already under way when the hold started")
                for w in conv.warnings)
     assert conv.baseline["conversion_under_way_at_hold_start"]
@@ -137,8 +149,9 @@ def test_conversion_under_way_at_the_hold_start_is_flagged(t0, transient):
 
 def test_event_cut_off_by_the_end_of_the_record_is_flagged():
     trace, truth = synthetic_isotherm(**RUN, duration=60.0 + 1.2 * 120.0, seed=16)
-    with pytest.warns(DataQualityWarning, match="cut off"):
+    with pytest.warns(DataQualityWarning) as caught:
         conv = prepare_isothermal(trace)
+    assert any("cut off" in str(w.message) for w in caught)
     assert any(w.startswith("event cut off by the end of the record") for w in conv.warnings)
     # only the recorded part is integrated: X(1.2 t_half) = 1 - 2^(-1.2^n) of the event
     assert conv.enthalpy / 90e3 == pytest.approx(1 - 2 ** (-(1.2 ** 2.6)), abs=0.03)

@@ -275,7 +275,7 @@ def _level_mismatch(t, z, pre, late, level, ev):
     offset = float(np.mean(z[m]) - level)
     se = ev.noise * np.sqrt(1.0 / m.sum() + 1.0 / k.sum())
     height = ev.window.peak_height
-    if abs(offset) > 5.0 * se and abs(offset) > 0.01 * height:
+    if abs(offset) > 5.0 * se and abs(offset) > 0.02 * height:
         return [f"the level before the event differs from the end-of-run level by "
                 f"{offset / height:+.1%} of the peak ({abs(offset) / se:.0f} standard errors): "
                 "drift or a heat-capacity change across the event; baseline='linear' or "

@@ -313,13 +313,14 @@ def prepare_cooling(trace, *, window=None, baseline="sigmoidal", exotherm=None, 
             win = win2
         i0, i1 = win.start_index, win.end_index
         B, fit, regions, terms, notes = _baseline(t, y, i0, i1, baseline, noise, src)
-        cut_start = bool(win.above_threshold_at_start) or i0 < _MIN_REGION
-        cut_end = bool(win.cut_off) or n - 1 - i1 < _MIN_REGION
+        trend_start, trend_end = _edge_trends(t, y, i0, i1, float(win.peak_height))
+        cut_start = bool(win.above_threshold_at_start) or i0 < _MIN_REGION or trend_start
+        cut_end = bool(win.cut_off) or n - 1 - i1 < _MIN_REGION or trend_end
         cut_reason = "; ".join(
             ([("the exotherm is already under way at the start of the constant-rate segment "
                f"({_fmt_T(T_mono[0])})")] if cut_start else [])
-            + ([win.cut_off_reason or "the exotherm has not ended at the end of the "
-                f"constant-rate segment ({_fmt_T(T_mono[-1])})"] if cut_end else []))
+            + ([("the exotherm has not ended at the end of the constant-rate segment "
+                 f"({_fmt_T(T_mono[-1])})")] if cut_end else []))
 
     sl = slice(i0, i1 + 1)
     ts, c = t[sl], y[sl] - B[sl]
@@ -442,6 +443,45 @@ def _region(t, a, b):
     return (float(t[a]), float(t[b]))
 
 
+def _regions(n, i0, i1):
+    width = max(i1 - i0, _MIN_REGION)
+    reach = int(1.5 * width)
+    pre = (max(0, i0 - reach), i0 - 1) if i0 >= _MIN_REGION else None
+    post = (i1 + 1, min(n - 1, i1 + reach)) if n - 1 - i1 >= _MIN_REGION else None
+    return pre, post
+
+
+def _trend(t, y, r):
+    tt, yy = t[r[0]:r[1] + 1], y[r[0]:r[1] + 1]
+    tc = tt - tt.mean()
+    sxx = float(np.sum(tc ** 2))
+    slope = float(np.sum(tc * (yy - yy.mean())) / sxx)
+    resid = yy - yy.mean() - slope * tc
+    se = float(np.sqrt(np.sum(resid ** 2) / max(len(tt) - 2, 1) / sxx))
+    return slope, se, float(tt[-1] - tt[0])
+
+
+def _edge_trends(t, y, i0, i1, height):
+    """Is the signal still changing beside the event (event cut off at start / end)?
+
+    The slope of the signal over each event-free region is compared with the
+    slope over the other one (a drifting baseline has about the same slope on
+    both sides). When the difference moves the signal by more than 5 standard
+    errors and more than 2 % of the peak across a region, the event continues
+    into the region whose own slope is the steeper (our criterion).
+    """
+    pre, post = _regions(len(t), i0, i1)
+    if pre is None or post is None:
+        return False, False
+    bp, sp, wp = _trend(t, y, pre)
+    bq, sq, wq = _trend(t, y, post)
+    se = np.hypot(sp, sq)
+    d = abs(bp - bq)
+    start = abs(bp) >= abs(bq) and d * wp > 5.0 * se * wp and d * wp > 0.02 * height
+    end = abs(bq) > abs(bp) and d * wq > 5.0 * se * wq and d * wq > 0.02 * height
+    return bool(start), bool(end)
+
+
 def _line_terms(t, region, order, noise, weight):
     """Error terms (level, and slope for order 1) of a line fitted over ``region``."""
     idx = np.arange(region[0], region[1] + 1) if isinstance(region, tuple) else region
@@ -458,11 +498,7 @@ def _line_terms(t, region, order, noise, weight):
 
 def _baseline(t, y, i0, i1, method, noise, src):
     """Baseline over the segment; regions limited to 1.5 window widths next to the event."""
-    n = len(t)
-    width = max(i1 - i0, _MIN_REGION)
-    reach = int(1.5 * width)
-    pre = (max(0, i0 - reach), i0 - 1) if i0 >= _MIN_REGION else None
-    post = (i1 + 1, min(n - 1, i1 + reach)) if n - 1 - i1 >= _MIN_REGION else None
+    pre, post = _regions(len(t), i0, i1)
     regions = {"pre": None if pre is None else _region(t, *pre),
                "post": None if post is None else _region(t, *post)}
     notes = []

@@ -19,7 +19,8 @@ Keys of ``Conversion.baseline`` written here (all SI, JSON-friendly):
 
 ``T_onset_K``, ``T_peak_K``, ``T_end_K``
     Sample temperature at the event start (X = 0), at the peak of the
-    baseline-corrected signal and at the event end (X = 1), lag-corrected.
+    baseline-corrected signal (vertex of a parabola through its top 10 %) and
+    at the event end (X = 1), lag-corrected.
 ``T_window_K``
     (T_onset_K, T_end_K). ``T_window_recorded_K``: the same in the file's
     temperature, before the lag correction.
@@ -344,6 +345,7 @@ def prepare_cooling(trace, *, window=None, baseline="sigmoidal", exotherm=None, 
         enthalpy, specific, unit = area, False, "J"
 
     cs = smooth(c, min(w, _odd_at_most(len(c))))
+    t_peak = _peak_time(ts, c, cs)
     ip = i0 + int(np.argmax(cs))
     height = float(np.max(cs))
     snr = height / noise
@@ -369,10 +371,11 @@ def prepare_cooling(trace, *, window=None, baseline="sigmoidal", exotherm=None, 
         "exotherm": choice.direction, "exotherm_source": choice.source,
         "exotherm_confidence": choice.confidence, "exotherm_detected": choice.detected,
         "exotherm_detected_confidence": choice.detected_confidence,
-        "T_onset_K": float(T_s[i0]), "T_peak_K": float(T_s[ip]), "T_end_K": float(T_s[i1]),
+        "T_onset_K": float(T_s[i0]), "T_peak_K": float(np.interp(t_peak, t, T_s)),
+        "T_end_K": float(T_s[i1]),
         "T_window_K": (float(T_s[i0]), float(T_s[i1])),
         "T_window_recorded_K": (float(T_mono[i0]), float(T_mono[i1])),
-        "t_onset_s": float(t[i0]), "t_peak_s": float(t[ip]), "t_end_s": float(t[i1]),
+        "t_onset_s": float(t[i0]), "t_peak_s": t_peak, "t_end_s": float(t[i1]),
         "t_half_s": t_half,
         "beta_K_per_s": beta, "beta_nominal_K_per_s": float(trace.info.rate),
         "segment_s": (float(t[0]), float(t[-1])), "segment_K": (float(T_mono[0]),
@@ -395,6 +398,25 @@ def prepare_cooling(trace, *, window=None, baseline="sigmoidal", exotherm=None, 
         window=(float(ts[0]), float(ts[-1])), baseline=provenance, hold_start=float(t[0]),
         transient_end=float(t[0]), induction_time=float(ts[0] - t[0]), signal=y[sl],
         baseline_values=B[sl], exotherm=choice.direction, warnings=tuple(found))
+
+
+def _peak_time(ts, c, cs):
+    """Vertex of a parabola fitted to the raw signal where the smoothed one exceeds 90 % of its top."""
+    k = int(np.argmax(cs))
+    top = cs[k] * 0.9
+    a = k
+    while a > 0 and cs[a - 1] >= top:
+        a -= 1
+    b = k
+    while b < len(cs) - 1 and cs[b + 1] >= top:
+        b += 1
+    if b - a < 4:
+        return float(ts[k])
+    tc = ts[a:b + 1] - ts[k]
+    p2, p1, _ = np.polyfit(tc, c[a:b + 1], 2)
+    if not p2 < 0:
+        return float(ts[k])
+    return float(np.clip(ts[k] - p1 / (2 * p2), ts[a], ts[b]))
 
 
 def _odd_at_most(k):

@@ -62,6 +62,12 @@ def _executor(jobs: int):
     return ProcessPoolExecutor(max_workers=jobs, mp_context=mp.get_context("spawn"))
 
 
+def _check_out(out: Path, overwrite: bool) -> None:
+    """Refuse early (before any fitting) an output folder that would be refused at the end."""
+    if out.exists() and not overwrite and (not out.is_dir() or any(out.iterdir())):
+        _fail(f"{out}: output folder exists; choose another with --out or pass --overwrite")
+
+
 def _finish(analysis, out: Path) -> None:
     import pandas as pd
 
@@ -113,6 +119,7 @@ def demo(out, quick, seed, jobs, overwrite, fast):
 
         click.echo("crystkin demo: invented PX-40 nucleating-agent screening (no real data).",
                    err=True)
+        _check_out(out, overwrite)
         with tempfile.TemporaryDirectory(prefix="crystkin-demo-") as tmp:
             study_file = write_demo_study(Path(tmp) / "input", seed=seed, quick=quick)
             study = read_study(study_file)
@@ -142,20 +149,26 @@ def analyze(study_file, out, seed, jobs, overwrite, fast):
     """Analyse every run of a study file (TOML) and write tables, figures and a report."""
     with _Guard():
         from kinetics.io import read_study
-        from kinetics.workflow import analyse_study, write_study
+        from kinetics.workflow import analyse_study, resume_folder, write_study
 
         if not study_file.exists():
             _fail(f"{study_file}: study file not found; check the path")
         study = read_study(study_file)
         click.echo(f"crystkin: {len(study.traces)} runs read from {study_file}", err=True)
+        _check_out(out, overwrite)
+        cache = resume_folder(out)
+        if cache.exists():
+            click.echo(f"crystkin: resuming an interrupted analysis ({cache})", err=True)
         ex = _executor(jobs)
         try:
             analysis = analyse_study(study, seed=seed, executor=ex, sample=not fast,
-                                     progress=_progress)
+                                     progress=_progress, cache_dir=cache)
         finally:
             if ex is not None:
                 ex.shutdown()
         write_study(analysis, out, overwrite=overwrite)
+        import shutil
+        shutil.rmtree(cache, ignore_errors=True)
         _finish(analysis, out)
 
 

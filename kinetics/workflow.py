@@ -18,7 +18,8 @@ from .dataset import Study
 from .export.results import posterior_table, preparation_table, write_draws, write_tables
 from .io.writers import atomic_output_dir, write_json
 
-__all__ = ["StudyAnalysis", "analyse_study", "write_study", "run_study", "PROCESS_CAUTION"]
+__all__ = ["StudyAnalysis", "analyse_study", "write_study", "run_study", "resume_folder",
+           "PROCESS_CAUTION"]
 
 PROCESS_CAUTION = (
     "Caution: these kinetic parameters and predictions are estimates from laboratory DSC "
@@ -50,8 +51,15 @@ class StudyAnalysis:
         return t[[c for c in cols if c in t.columns]]
 
 
+def resume_folder(out) -> Path:
+    """Hidden folder beside ``out`` where finished per-run fits wait until ``out`` is written."""
+    out = Path(out)
+    return out.parent / f".{out.name}.crystkin-resume"
+
+
 def analyse_study(study: Study, *, seed: int = 0, executor=None, sample: bool = True,
-                  progress=None, fit_options: dict | None = None) -> StudyAnalysis:
+                  progress=None, fit_options: dict | None = None,
+                  cache_dir=None) -> StudyAnalysis:
     """Run every analysis the study's runs allow.
 
     Parameters
@@ -65,6 +73,9 @@ def analyse_study(study: Study, *, seed: int = 0, executor=None, sample: bool = 
         False: least squares only (fast, for a first look).
     progress : callable, optional
         ``progress(message)`` for long work.
+    cache_dir : path, optional
+        Keep finished per-run fits there, so an interrupted analysis resumes
+        (see :func:`resume_folder`).
     """
     t_start = time.perf_counter()
     options = {"sample": sample, **(fit_options or {})}
@@ -76,6 +87,7 @@ def analyse_study(study: Study, *, seed: int = 0, executor=None, sample: bool = 
             if progress:
                 progress(f"[{done}/{total}] isothermal {run_id}")
         batch = analyse_isotherms(iso, seed=seed, executor=executor, progress=tick,
+                                  cache_dir=None if cache_dir is None else Path(cache_dir) / "isothermal",
                                   sample=sample, **(fit_options or {}))
         res.isothermal = batch
         res.failures.extend(batch.failures)
@@ -172,7 +184,11 @@ def _provenance(analysis: StudyAnalysis) -> dict:
 def run_study(study: Study, out, *, seed: int = 0, overwrite: bool = False, executor=None,
               sample: bool = True, progress=None, fit_options=None) -> StudyAnalysis:
     """Analyse a study and write everything into ``out``; returns the analysis."""
+    import shutil
+
+    cache = resume_folder(out)
     analysis = analyse_study(study, seed=seed, executor=executor, sample=sample,
-                             progress=progress, fit_options=fit_options)
+                             progress=progress, fit_options=fit_options, cache_dir=cache)
     write_study(analysis, out, overwrite=overwrite)
+    shutil.rmtree(cache, ignore_errors=True)
     return analysis

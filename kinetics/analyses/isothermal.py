@@ -432,7 +432,7 @@ def _fit_one(args):
 
 
 def analyse_isotherms(traces, *, seed: int = 0, executor: Executor | None = None,
-                      progress=None, **fit_options) -> BatchResult:
+                      progress=None, cache_dir=None, **fit_options) -> BatchResult:
     """Fit every isothermal run; failures are collected, not raised.
 
     Parameters
@@ -442,22 +442,41 @@ def analyse_isotherms(traces, *, seed: int = 0, executor: Executor | None = None
         Study seed; each run's seed is derived from it and the run name, so
         results do not depend on the order or the executor.
     executor : concurrent.futures.Executor, optional
-        For example ``ProcessPoolExecutor`` or a Dask client's executor;
-        default runs in this process.
+        For example ``ProcessPoolExecutor`` or a Dask client's executor
+        (``client.get_executor(pure=False)``); default runs in this process.
     progress : callable, optional
         Called as ``progress(run_id, done, total)`` after each run.
+    cache_dir : path, optional
+        Finished fits are kept there (see :mod:`kinetics.analyses.cache`), so a
+        batch that was interrupted resumes without redoing them.
+    **fit_options
+        Passed to :func:`fit_isotherm`.
     """
+    from .cache import ResultCache, run_key
+
+    cache = ResultCache(cache_dir)
     traces = [t for t in traces if t.info.kind == "isothermal"]
-    jobs = [(t, run_seed(seed, t.run_id), fit_options) for t in traces]
-    results = []
-    if executor is None:
-        it = map(_fit_one, jobs)
-    else:
-        it = executor.map(_fit_one, jobs)
-    for i, res in enumerate(it, 1):
-        results.append(res)
+    jobs, keys, done = [], {}, {}
+    for t in traces:
+        s = run_seed(seed, t.run_id)
+        key = run_key(t, s, fit_options)
+        keys[t.run_id] = key
+        hit = cache.get(t.run_id, key)
+        if hit is not None:
+            done[t.run_id] = hit
+        else:
+            jobs.append((t, s, fit_options))
+    it = map(_fit_one, jobs) if executor is None else executor.map(_fit_one, jobs)
+    total = len(traces)
+    count = len(done)
+    for res in it:
+        done[res[0]] = res
+        if res[1] is not None:
+            cache.put(res[0], keys[res[0]], res)
+        count += 1
         if progress is not None:
-            progress(res[0], i, len(jobs))
+            progress(res[0], count, total)
+    results = [done[t.run_id] for t in traces]
     fits = tuple(f for _, f, _ in results if f is not None)
     failures = tuple((rid, msg) for rid, f, msg in results if f is None)
     return BatchResult(fits=fits, failures=failures)

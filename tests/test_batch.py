@@ -1,0 +1,95 @@
+"""Batches: executors give identical results, interrupted batches resume.
+
+The runs are invented (kinetics.synthetic); these are consistency checks.
+"""
+
+from __future__ import annotations
+
+import os
+import signal
+import subprocess
+import sys
+import time
+from pathlib import Path
+
+import pandas as pd
+import pytest
+
+from kinetics.analyses import isothermal as iso
+from kinetics.analyses.isothermal import analyse_isotherms
+from kinetics.demo import write_demo_study
+from kinetics.synthetic import synthetic_isotherm
+
+
+def _runs(k=4):
+    return [synthetic_isotherm(n=2.5, t_half=40.0 + 10 * i, t0=15.0, temperature=400.0 + i,
+                               duration=400, seed=10 + i, run_id=f"b{i}")[0] for i in range(k)]
+
+
+def test_order_does_not_change_results():
+    runs = _runs()
+    a = analyse_isotherms(runs, seed=3, sample=False).table()
+    b = analyse_isotherms(runs[::-1], seed=3, sample=False).table()
+    pd.testing.assert_frame_equal(a, b)
+
+
+def test_dask_executor_matches_local():
+    distributed = pytest.importorskip("distributed")
+    runs = _runs(3)
+    local = analyse_isotherms(runs, seed=5, sample=True,
+                              sampler_options={"max_steps": 500}).table()
+    with distributed.LocalCluster(n_workers=1, threads_per_worker=2, processes=False,
+                                  dashboard_address=None) as cluster, \
+            distributed.Client(cluster) as client:
+        remote = analyse_isotherms(runs, seed=5, sample=True,
+                                   executor=client.get_executor(pure=False),
+                                   sampler_options={"max_steps": 500}).table()
+    pd.testing.assert_frame_equal(local, remote)
+
+
+def test_cache_resumes_without_refitting(tmp_path, monkeypatch):
+    runs = _runs(3)
+    first = analyse_isotherms(runs, seed=1, sample=False, cache_dir=tmp_path / "c").table()
+
+    def boom(*a, **k):
+        raise AssertionError("a finished run was fitted again")
+
+    monkeypatch.setattr(iso, "fit_isotherm", boom)
+    again = analyse_isotherms(runs, seed=1, sample=False, cache_dir=tmp_path / "c").table()
+    pd.testing.assert_frame_equal(first, again)
+
+
+def _cli():
+    exe = Path(sys.executable).with_name("crystkin")
+    return [str(exe)] if exe.exists() else [sys.executable, "-m", "crystkin_cli.main"]
+
+
+def test_killed_batch_restarts_with_same_tables(tmp_path):
+    study = write_demo_study(tmp_path / "in", quick=True)
+    text = study.read_text().split("[[run]]")
+    study.write_text("[[run]]".join(text[:4]))
+    ref = tmp_path / "ref"
+    cmd = [*_cli(), "analyze", str(study), "--seed", "2"]
+    subprocess.run([*cmd, "--out", str(ref)], check=True, capture_output=True, timeout=600)
+
+    out = tmp_path / "out"
+    resume = tmp_path / ".out.crystkin-resume" / "isothermal"
+    proc = subprocess.Popen([*cmd, "--out", str(out)], stdout=subprocess.DEVNULL,
+                            stderr=subprocess.DEVNULL, start_new_session=True)
+    deadline = time.time() + 300
+    while time.time() < deadline and proc.poll() is None:
+        if resume.exists() and len(list(resume.glob("*.pkl"))) >= 1:
+            break
+        time.sleep(0.05)
+    if proc.poll() is None:
+        os.killpg(proc.pid, signal.SIGKILL)
+        proc.wait()
+    assert not out.exists(), "a killed run must not leave a half-written output folder"
+    done_before = len(list(resume.glob("*.pkl")))
+    assert 1 <= done_before < 3
+    r = subprocess.run([*cmd, "--out", str(out)], capture_output=True, text=True, timeout=600)
+    assert r.returncode == 0, r.stderr
+    assert "resuming" in r.stderr
+    assert (out / "tables" / "isothermal_runs.csv").read_bytes() == \
+        (ref / "tables" / "isothermal_runs.csv").read_bytes()
+    assert not resume.parent.exists()

@@ -68,14 +68,12 @@ def test_posterior_coverage_40_replicates(synthetic_run, hand_conversion):
 
 @pytest.mark.slow
 def test_posterior_coverage_end_to_end_prepared(synthetic_run, hand_conversion):
-    """20 replicates through prepare_isothermal (transient modelled; with the
-    default 'auto' see the xfail in test_isotherm_recovery.py)."""
+    """20 replicates end to end: prepare_isothermal, then fit_isotherm with its
+    default options."""
     prep = pytest.importorskip("kinetics.prep")
     if not hasattr(prep, "prepare_isothermal"):
         pytest.skip("kinetics.prep.prepare_isothermal not available yet")
-    cov = _coverage(_study(synthetic_run, hand_conversion, 20, prepared=True,
-                           transient="model"))
-    print(f"\n95 % interval coverage over 20 replicates (prepare_isothermal, transient "
-          f"modelled): {cov}")
+    cov = _coverage(_study(synthetic_run, hand_conversion, 20, prepared=True))
+    print(f"\n95 % interval coverage over 20 replicates (prepare_isothermal, defaults): {cov}")
     for q, c in cov.items():
         assert 0.8 <= c <= 1.0, f"coverage of {q}: {c:.3f} ({cov})"

@@ -43,6 +43,7 @@ from ..models.growth import (
     sigma_sigma_e_from_kg,
     thomas_staveley_sigma,
 )
+from ..models.hoffman_lauritzen import hl_activation_energy
 from ..models.params import Parameter, Uniform
 from ..units import celsius
 
@@ -1074,8 +1075,9 @@ class HLEnergyFit:
         T = (np.linspace(self.T.min(), self.T.max(), 100) if T is None
              else np.asarray(T, dtype=float))
         d = self.draws
-        u, g = hl_energy_terms(T[None, :], Tm0=d["Tm0"][:, None], T_inf=d["T_inf"][:, None])
-        E = d["U_star"][:, None] * u + d["Kg"][:, None] * g
+        E = hl_activation_energy(T[None, :], U_star=d["U_star"][:, None],
+                                 T_inf=d["T_inf"][:, None], Kg=d["Kg"][:, None],
+                                 Tm0=d["Tm0"][:, None])
         q = np.nanquantile(E, [0.025, 0.5, 0.975], axis=0)
         return pd.DataFrame({"T_K": T, "T_degC": celsius(T), "E_J_per_mol": q[1],
                              "E_J_per_mol_lo95": q[0], "E_J_per_mol_hi95": q[2]})

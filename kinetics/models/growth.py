@@ -1,7 +1,8 @@
 """Growth theory, melting and crystallinity: pure, vectorised functions in SI units.
 
 * Hoffman-Lauritzen in linearised form, regime constants, Thomas-Staveley sigma,
-  work of chain folding, the isoconversional E(T) of the HL rate split into its terms;
+  work of chain folding, the isoconversional E(T) of the HL rate split into its terms
+  (the rate itself and the full E(T) are in :mod:`kinetics.models.hoffman_lauritzen`);
 * Hoffman-Weeks (linear and the Marand-Xu-Srinivas nonlinear form), Gibbs-Thomson;
 * Bragg's law, scattering vector, long period, lamellar thickness;
 * unit-cell volume and crystal density, two-phase density crystallinity, WAXD area
@@ -21,7 +22,7 @@ from ..constants import K_B, N_A, R
 from .avrami import avrami_cell_rate, avrami_conversion
 
 __all__ = [
-    "REGIME_N", "regime_n", "hl_x", "hl_transport", "hl_ln_rate", "hl_coordinates",
+    "REGIME_N", "regime_n", "hl_x", "hl_transport", "hl_coordinates",
     "kg_from_constants", "sigma_sigma_e_from_kg", "thomas_staveley_sigma", "fold_work",
     "hl_energy_terms", "hoffman_weeks_tm", "marand_tm", "gibbs_thomson_tm",
     "gibbs_thomson_thickness", "bragg_spacing", "bragg_angle", "scattering_vector",
@@ -91,32 +92,6 @@ def hl_transport(T_c, U_star, T_inf):
         return _f(U_star) / (R * (_f(T_c) - _f(T_inf)))
 
 
-def hl_ln_rate(T_c, ln_prefactor, Kg, *, Tm0, U_star, T_inf):
-    """Logarithm of the Hoffman-Lauritzen growth (or overall) rate.
-
-    Parameters
-    ----------
-    T_c : array_like, K
-    ln_prefactor : array_like
-        ln G0 (G0 in the unit of the rate: m/s for G, 1/s for 1/t_half).
-    Kg : array_like, K^2
-        Nucleation constant.
-    Tm0, U_star, T_inf : array_like
-        K, J/mol, K.
-
-    Returns
-    -------
-    ndarray
-        ln G = ln G0 - U*/(R (T_c - T_inf)) - Kg / (T_c dT f).
-
-    Notes
-    -----
-    G = G0 exp[-U*/(R(T_c - T_inf))] exp[-Kg/(T_c dT f)], dT = Tm0 - T_c,
-    f = 2 T_c/(Tm0 + T_c) (Hoffman & Miller, Polymer 38 (1997) 3151).
-    """
-    return _f(ln_prefactor) - hl_transport(T_c, U_star, T_inf) - _f(Kg) * hl_x(T_c, Tm0)
-
-
 def hl_coordinates(T_c, ln_rate, *, Tm0, U_star, T_inf):
     """Coordinates of the linearised Hoffman-Lauritzen plot.
 
@@ -126,6 +101,11 @@ def hl_coordinates(T_c, ln_rate, *, Tm0, U_star, T_inf):
         1/(T_c dT f).
     y : ndarray
         ln(rate) + U*/(R (T_c - T_inf)); the line has slope -Kg and intercept ln G0.
+
+    Notes
+    -----
+    From ln G = ln G0 - U*/(R(T_c - T_inf)) - Kg/(T_c dT f)
+    (:func:`kinetics.models.hoffman_lauritzen.hl_ln_rate`; Hoffman & Miller 1997).
     """
     return hl_x(T_c, Tm0), _f(ln_rate) + hl_transport(T_c, U_star, T_inf)
 
@@ -217,7 +197,9 @@ def hl_energy_terms(T, *, Tm0, T_inf):
     -----
     E(T) = -R d ln G / d(1/T) = U* u + Kg g
     (Vyazovkin & Sbirrazzuoli, Macromol. Rapid Commun. 25 (2004) 733; from memory,
-    derivative checked numerically). E is negative near Tm0.
+    derivative checked numerically). E is negative near Tm0. The split into the two
+    factors is what the linear fit of Kg (and U*) needs; the full E(T) is
+    :func:`kinetics.models.hoffman_lauritzen.hl_activation_energy`.
     """
     T = _f(T)
     Tm = _f(Tm0)

@@ -29,6 +29,7 @@ from kinetics.analyses.compare import (
     NucleationReference,
     RateCurves,
     compare_formulations,
+    cooling_peak_from_conversion,
     format_estimate,
     format_probability,
     nucleation_efficiency,
@@ -472,3 +473,57 @@ def test_warnings_are_recorded_and_issued():
     texts = [str(w.message) for w in caught if issubclass(w.category, DataQualityWarning)]
     assert any("no reference ('ref') isothermal hold at 136.9 °C" in t for t in texts)
     assert set(res.warnings) <= set(texts)
+
+
+def test_cooling_peaks_from_prepared_runs():
+    # Invented Nakamura cooling runs (kinetics.synthetic_cooling) through prepare_cooling;
+    # group "fast" has K(T) three times the reference's, so it crystallizes at a higher
+    # temperature on cooling.  Peak temperatures are checked against the generator's truth.
+    from kinetics.prep.cooling import prepare_cooling
+    from kinetics.synthetic_cooling import demo_rate_function, synthetic_cooling
+
+    base = demo_rate_function()
+
+    def fast(T):
+        return 3.0 * base(T)
+
+    pairs, truths = [], {}
+    for g, K in (("ref", base), ("fast", fast)):
+        for i in range(2):
+            trace, truth = synthetic_cooling(rate=10 / 60, K_of_T=K, seed=20 * i + len(g),
+                                             run_id=f"{g}{i}", group=g)
+            pairs.append((trace, prepare_cooling(trace)))
+            truths[f"{g}{i}"] = truth["T_peak_sample"]
+    peak = cooling_peak_from_conversion(*pairs[0])
+    assert peak.group == "ref" and peak.rate == pytest.approx(10 / 60)
+    assert peak.T_peak == pytest.approx(truths["ref0"], abs=0.5)
+    res = compare_formulations(cooling_peaks=pairs, reference="ref")
+    row = res.tables()["compare_cooling"].iloc[0]
+    true_shift = np.mean([truths["fast0"], truths["fast1"]]) - np.mean([truths["ref0"],
+                                                                         truths["ref1"]])
+    assert true_shift > 1.0
+    assert row["T_peak_shift_K"] == pytest.approx(true_shift, abs=0.5)
+    assert row["p_faster"] > 0.99 and row["finding"] == "faster"
+    assert row["t_half_ratio"] < 1.0
+
+
+def test_batch_result_and_table_inputs(hand_conversion):
+    import pandas as pd
+
+    from kinetics.analyses.isothermal import BatchResult
+
+    fits = _fit_runs(hand_conversion, [("ref", 2.6, {400.0: 80.0}, 1),
+                                       ("A", 2.6, {400.0: 40.0}, 1)], seed=4)
+    batch = BatchResult(fits=tuple(fits), failures=(("ref_bad", "too short"),))
+    res = compare_formulations(batch, reference="ref")
+    assert res.tables()["compare_half_time"]["t_half_ratio"].iloc[0] == pytest.approx(0.5,
+                                                                                     rel=0.03)
+    assert any("ref_bad failed upstream" in w for w in res.warnings)
+    table = pd.DataFrame([{"run_id": "r", "group": "ref", "rate_K_per_min": 10.0,
+                           "T_peak_K": 390.0, "T_peak_sd_K": 0.2},
+                          {"run_id": "a", "group": "A", "rate_K_per_min": 10.0,
+                           "T_peak_K": 394.0, "T_peak_sd_K": 0.2}])
+    row = compare_formulations(cooling_peaks=table, reference="ref") \
+        .tables()["compare_cooling"].iloc[0]
+    assert row["T_peak_shift_K"] == pytest.approx(4.0, abs=0.05)
+    assert math.isnan(row["T_onset_shift_K"])

@@ -346,7 +346,6 @@ def prepare_cooling(trace, *, window=None, baseline="sigmoidal", exotherm=None, 
 
     cs = smooth(c, min(w, _odd_at_most(len(c))))
     t_peak = _peak_time(ts, c, cs)
-    ip = i0 + int(np.argmax(cs))
     height = float(np.max(cs))
     snr = height / noise
     beta = _rate_over(t, T_rec, i0, i1, seg.rate)
@@ -401,7 +400,7 @@ def prepare_cooling(trace, *, window=None, baseline="sigmoidal", exotherm=None, 
 
 
 def _peak_time(ts, c, cs):
-    """Vertex of a parabola fitted to the raw signal where the smoothed one exceeds 90 % of its top."""
+    """Vertex of a parabola through the top 10 % of the exotherm (raw signal)."""
     k = int(np.argmax(cs))
     top = cs[k] * 0.9
     a = k

@@ -38,6 +38,7 @@ class StudyAnalysis:
     tables: dict[str, pd.DataFrame] = field(default_factory=dict)
     failures: list[tuple[str, str]] = field(default_factory=list)
     notes: list[str] = field(default_factory=list)
+    figures: list = field(default_factory=list)
     seconds: float = 0.0
 
     @property
@@ -101,33 +102,54 @@ def analyse_study(study: Study, *, seed: int = 0, executor=None, sample: bool = 
     return res
 
 
-def _write_figures(analysis: StudyAnalysis, out: Path) -> list[str]:
+@dataclass(frozen=True)
+class FigureFile:
+    """A figure written to ``figures/``: report section, file name and caption."""
+
+    section: str
+    filename: str
+    caption: str
+
+
+def _write_figures(analysis: StudyAnalysis, out: Path) -> list[FigureFile]:
     from .report import figures
     from .report.style import save
 
     folder = out / "figures"
     folder.mkdir(exist_ok=True)
-    written = []
+    written: list[FigureFile] = []
+
+    def put(section, fig, name, caption):
+        save(fig, folder / name)
+        written.append(FigureFile(section, name, caption))
+
     batch = analysis.isothermal
     if batch and batch.fits:
         by_group: dict[str, list] = {}
         for f in batch.fits:
             by_group.setdefault(f.trace.info.group, []).append(f)
+        first = batch.fits[0]
+        put("data", figures.raw_signal_figure(first), f"signal_{first.run_id}.png",
+            f"Run {first.run_id}: recorded signal (exotherm up), baseline, event window and "
+            "end of the start-up transient.")
         for group, fits in by_group.items():
             fits = sorted(fits, key=lambda f: f.trace.info.temperature)
             stem = _safe_stem(group)
-            written.append(save(figures.isotherm_conversion_figure(
+            put("isothermal", figures.isotherm_conversion_figure(
                 fits, title=f"{group}: relative crystallinity"),
-                folder / f"isothermal_conversion_{stem}.png"))
-            written.append(save(figures.avrami_plot_figure(fits),
-                                folder / f"avrami_plot_{stem}.png"))
-        written.append(save(figures.half_time_figure(analysis.tables["isothermal_runs"]),
-                            folder / "half_times.png"))
-        first = batch.fits[0]
-        written.append(save(figures.raw_signal_figure(first), folder / f"signal_{first.run_id}.png"))
+                f"isothermal_conversion_{stem}.png",
+                f"{group}: relative crystallinity X(t) of each hold (points) with the posterior "
+                "median curve and 95 % band.")
+            put("isothermal", figures.avrami_plot_figure(fits), f"avrami_plot_{stem}.png",
+                f"{group}: double-logarithmic Avrami plot; thick lines mark the linearised fit "
+                "and its conversion window.")
+        put("isothermal", figures.half_time_figure(analysis.tables["isothermal_runs"]),
+            "half_times.png", "Avrami half-time against crystallization temperature "
+            "(posterior median and 95 % interval).")
         if first.posterior is not None:
-            written.append(save(figures.posterior_pairs_figure(first),
-                                folder / f"posterior_{first.run_id}.png"))
+            put("diagnostics", figures.posterior_pairs_figure(first),
+                f"posterior_{first.run_id}.png",
+                f"Run {first.run_id}: posterior draws of n, t_half and t0.")
     return written
 
 
@@ -151,9 +173,9 @@ def write_study(analysis: StudyAnalysis, out, *, overwrite: bool = False,
         write_tables(tmp, analysis.tables)
         if analysis.isothermal and analysis.isothermal.fits:
             write_draws(tmp, "isothermal", {f.run_id: f.derived for f in analysis.isothermal.fits})
-        figs = _write_figures(analysis, tmp)
+        analysis.figures = _write_figures(analysis, tmp)
         from .report.markdown import write_markdown_report
-        write_markdown_report(analysis, tmp, [Path(f).name for f in figs])
+        write_markdown_report(analysis, tmp, [f.filename for f in analysis.figures])
         write_json(tmp / "provenance.json", _provenance(analysis))
     return out
 

@@ -239,7 +239,7 @@ class SecondaryResult:
 def compare_secondary(trace: Trace, conversion: Conversion | None = None, *, seed: int = 0,
                       sample: bool = True, transient: str = "auto", max_points: int = 400,
                       bic_margin: float = 10.0, min_weight: float = 0.03,
-                      min_ratio: float = 1.5, max_nfev: int = 200,
+                      min_ratio: float = 1.5, max_nfev: int = 100,
                       sampler_options: dict | None = None,
                       prep_options: dict | None = None) -> SecondaryResult:
     """Fit plain and two-stage Avrami models to one isotherm and choose between them.
@@ -346,8 +346,9 @@ def compare_secondary(trace: Trace, conversion: Conversion | None = None, *, see
     th1 = draws["t_half1"]
     th2 = th1 * draws["ratio"]
     n1, n2 = draws["n1"], draws["n2"]
-    k1, k2 = avrami_k_from_half_time(n1, th1), avrami_k_from_half_time(n2, th2)
-    ok = np.isfinite(w2) & (w2 >= 0) & (w2 <= 1)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        k1, k2 = avrami_k_from_half_time(n1, th1), avrami_k_from_half_time(n2, th2)
+    ok = np.isfinite(w2) & (w2 >= 0) & (w2 <= 1) & np.isfinite(k1) & np.isfinite(k2)
     t_tot = np.full_like(w2, np.nan)
     t_end = float(trace.time[-1] - np.median(draws["t0"])) * 10
     t_tot[ok] = _two_stage_half_time(w2[ok], n1[ok], k1[ok], n2[ok], k2[ok], t_end)

@@ -41,8 +41,8 @@ from ..cautions import PROCESS_CAUTION
 from ..errors import CrystkinInputError, DataQualityWarning
 from ..io.profile import TemperatureProfile
 from ..estimate import summarise
-from ..models.hoffman_lauritzen import hl_half_time
-from ..models.nakamura import nakamura_conversion, nakamura_K_from_half_time
+from ..models.hoffman_lauritzen import hl_ln_rate
+from ..models.nakamura import LN2, nakamura_conversion
 from ..units import celsius
 
 __all__ = ["PARAMETER_NAMES", "PARAMETER_UNITS", "SimulationModel", "Prediction",
@@ -89,9 +89,10 @@ def rate_constant(T, draws) -> np.ndarray:
     T = np.asarray(T, dtype=float)[None, :]
     col = {name: d[:, i:i + 1] for i, name in enumerate(PARAMETER_NAMES)}
     with np.errstate(over="ignore", divide="ignore", invalid="ignore"):
-        th = hl_half_time(T, ln_prefactor=col["ln_rate0"], Kg=col["Kg"], U_star=col["U_star"],
-                          T_inf=col["T_inf"], Tm0=col["Tm0"])
-        K = nakamura_K_from_half_time(col["n"], th)
+        # ln K = ln (1/t_half) + ln(ln 2)/n, i.e. nakamura_K_from_half_time in one exp
+        lnK = hl_ln_rate(T, ln_prefactor=col["ln_rate0"] + np.log(LN2) / col["n"], Kg=col["Kg"],
+                         U_star=col["U_star"], T_inf=col["T_inf"], Tm0=col["Tm0"])
+        K = np.exp(lnK)
     return np.where(np.isfinite(K), K, 0.0)
 
 

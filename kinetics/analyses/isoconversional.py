@@ -23,6 +23,7 @@ import numpy as np
 import pandas as pd
 from scipy.constants import R
 from scipy.optimize import minimize_scalar
+from scipy.special import ndtri
 
 from ..errors import CrystkinInputError, check_range
 from ..estimate import interval_columns
@@ -322,6 +323,8 @@ class VyazovkinRow:
     phi_min : float
     n_runs : int
     group : str
+    jackknife_sd : float, J/mol
+        Leave-one-run-out SD of E, added to the resampled draws.
     """
 
     X: float
@@ -334,6 +337,7 @@ class VyazovkinRow:
     phi_min: float
     n_runs: int
     group: str = "default"
+    jackknife_sd: float = float("nan")
 
     def row(self) -> dict:
         n = self.n_runs
@@ -346,6 +350,7 @@ class VyazovkinRow:
             r.update({"E_kJ_per_mol": np.nan, "E_kJ_per_mol_lo95": np.nan,
                       "E_kJ_per_mol_hi95": np.nan})
         r["E_point_kJ_per_mol"] = self.E_point / 1e3
+        r["E_jackknife_sd_kJ_per_mol"] = self.jackknife_sd / 1e3
         r["phi_min_ratio"] = self.phi_min / (n * (n - 1)) if n > 1 else np.nan
         r["n_draws"] = 0 if self.draws is None else int(len(self.draws))
         r["note"] = self.note
@@ -407,6 +412,14 @@ def _resampled_E(runs_t, runs_T, t_lo, t_hi, E0, T_ref, width0):
     return None
 
 
+def _jackknife_sd(segs, bracket):
+    """Leave-one-run-out standard deviation of E (Efron & Tibshirani 1993, ch. 11)."""
+    n = len(segs)
+    E = np.array([vyazovkin_energy(segs[:i] + segs[i + 1:], bracket=bracket)[0]
+                  for i in range(n)])
+    return float(np.sqrt((n - 1) / n * np.sum((E - E.mean()) ** 2)))
+
+
 def vyazovkin(runs, *, conversions=None, delta=0.02, bracket=(-2000e3, 2000e3), n_draws=200,
               min_rates=3, seed=0, group="default") -> VyazovkinResult:
     """Vyazovkin's advanced integral isoconversional method, for any temperature programme.
@@ -454,12 +467,18 @@ def vyazovkin(runs, *, conversions=None, delta=0.02, bracket=(-2000e3, 2000e3), 
     (:func:`kinetics.prep.cooling.conversion_noise_map`: the same errors that
     weight the Friedman, Ozawa and Mo lines), moves the interval ends by
     delta t = -delta X / (dX/dt), and minimises Phi again. The spread of these
-    estimates is the interval. It reflects the noise of the measured curves;
-    like any such propagation it does not cover systematic differences between
-    runs (``phi_min_ratio`` = Phi_min / (n (n - 1)), 1 for perfectly consistent
-    runs, shows those). An F-ratio interval on Phi (Vyazovkin & Wight, Anal.
-    Chem. 72 (2000) 3171, from memory) is an alternative we did not use,
-    because its statistical premise (Phi as a ratio of variances) is not met.
+    estimates reflects the noise of the measured curves only. Systematic
+    differences between runs (baseline choices, an E that changes over the
+    temperatures the runs span at one X) are taken in by a leave-one-run-out
+    jackknife (Efron & Tibshirani, An Introduction to the Bootstrap, 1993,
+    ch. 11): each resampled estimate gets a normal term with the jackknife SD
+    (evenly spaced normal quantiles in random order, to keep Monte Carlo noise
+    low), so the interval is noise and between-run disagreement
+    combined (``E_jackknife_sd_kJ_per_mol``; ``phi_min_ratio`` = Phi_min /
+    (n (n - 1)), 1 for perfectly consistent runs). An F-ratio interval on Phi
+    (Vyazovkin & Wight, Anal. Chem. 72 (2000) 3171, from memory) is an
+    alternative we did not use, because its premise (Phi as a ratio of
+    variances) is not met.
     """
     runs = list(runs)
     require_rates(runs, "Vyazovkin's isoconversional analysis", need=min_rates)
@@ -510,6 +529,7 @@ def vyazovkin(runs, *, conversions=None, delta=0.02, bracket=(-2000e3, 2000e3), 
             continue
         E_draws = None
         note = ""
+        sd_jk = float("nan")
         if n_draws:
             E_draws = _resampled_E([c.time for c, *_ in use], [c.temperature for c, *_ in use],
                                    np.stack([p[4][j] for p in use]),
@@ -517,8 +537,13 @@ def vyazovkin(runs, *, conversions=None, delta=0.02, bracket=(-2000e3, 2000e3), 
                                    max(0.1 * abs(E0), 10e3))
             if E_draws is None:
                 note = "resampling did not settle on a minimum; no interval"
+            else:
+                sd_jk = _jackknife_sd(segs, (lo_b, hi_b))
+                S = len(E_draws)
+                strata = ndtri((np.arange(S) + 0.5) / S)  # evenly spread normal quantiles
+                E_draws = E_draws + sd_jk * rng.permutation(strata)
         rows.append(VyazovkinRow(float(X), float(delta), True, note, E0, E_draws, T_mean, phi0,
-                                 len(use), group))
+                                 len(use), group, sd_jk))
     return VyazovkinResult(tuple(rows), (),
                            {"delta": float(delta), "interval": "[X - delta/2, X + delta/2]",
                             "bracket_J_per_mol": (lo_b, hi_b), "n_draws": int(n_draws),

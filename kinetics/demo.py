@@ -3,7 +3,7 @@
 Scenario: a compounding lab evaluates an invented polypropylene-like grade
 "PX-40", neat and with two invented nucleating additives, "N-A" (0.1 wt %) and
 "N-B" (0.2 wt %), to shorten the cooling time of thin-walled molded parts.
-Per formulation: isothermal holds at five temperatures (Avrami conversion with a
+Per formulation: isothermal holds at five temperatures (one repeated) (Avrami conversion with a
 Hoffman–Lauritzen-type temperature dependence of the half-time) and cooling
 scans at five rates (Nakamura model with the same rate function), plus, for the
 neat grade, melting scans after holds (for Hoffman–Weeks).  All come from the
@@ -59,7 +59,9 @@ DEMO_GROUPS = (
 )
 DEMO_TEMPERATURES_C = (128.0, 130.0, 132.0, 134.0, 136.0)
 DEMO_RATES_K_PER_MIN = (2.0, 5.0, 10.0, 20.0, 40.0)
-DEMO_MELTING_HOLDS_C = (128.0, 132.0, 136.0)
+DEMO_MELTING_HOLDS_C = (128.0, 130.0, 132.0, 134.0, 136.0)
+#: Invented run-to-run scatter of the half-time (coefficient of variation).
+RUN_CV = 0.04
 #: Invented lamellar-thickening ratio of the demo (Hoffman–Weeks gamma).
 GAMMA = 2.0
 
@@ -146,13 +148,14 @@ def write_demo_study(folder, *, seed: int = 0, quick: bool = False) -> Path:
     raw.mkdir(parents=True, exist_ok=True)
     temps = DEMO_TEMPERATURES_C[::2] if quick else DEMO_TEMPERATURES_C
     runs = []
+    holds = [(Tc, "") for Tc in temps] + [(temps[len(temps) // 2], "b")]
     for g in DEMO_GROUPS:
-        for Tc in temps:
+        for Tc, rep in holds:
             T = kelvin(Tc)
-            th = float(demo_half_time(T, g.t_half_ref))
-            name = f"{g.group}_iso{Tc:.0f}"
+            name = f"{g.group}_iso{Tc:.0f}{rep}"
             rs = run_seed(seed, name)
             rng = np.random.default_rng(rs)
+            th = float(demo_half_time(T, g.t_half_ref)) * float(np.exp(rng.normal(0, RUN_CV)))
             mass = float(rng.uniform(4.5, 6.0)) * 1e-6
             t0 = float(rng.uniform(8.0, 20.0))
             duration = t0 + max(5.0 * th, 120.0) + 120.0
@@ -169,11 +172,11 @@ def write_demo_study(folder, *, seed: int = 0, quick: bool = False) -> Path:
             runs.append((name, f"raw/{fname}", g.group, Tc, mass, g.layout))
     rates = DEMO_RATES_K_PER_MIN[1::2] if quick else DEMO_RATES_K_PER_MIN
     for g in DEMO_GROUPS:
-        K_of_T = demo_rate_function(g.t_half_ref, g.n)
-        for r in rates:
-            name = f"{g.group}_cool{r:g}"
+        for r, rep in [(r, "") for r in rates] + [(rates[len(rates) // 2], "b")]:
+            name = f"{g.group}_cool{r:g}{rep}"
             rs = run_seed(seed, name)
             rng = np.random.default_rng(rs)
+            K_of_T = demo_rate_function(g.t_half_ref * float(np.exp(rng.normal(0, RUN_CV))), g.n)
             mass = float(rng.uniform(4.5, 6.0)) * 1e-6
             beta = r / 60.0
             n_points = int(np.clip((kelvin(175.0) - kelvin(70.0)) / beta / 0.5, 600, 4000))
@@ -221,7 +224,7 @@ def write_demo_study(folder, *, seed: int = 0, quick: bool = False) -> Path:
 
 def demo_truth() -> dict:
     """The invented true values behind the demo, for checks and notebooks."""
-    return {"Tm0_K": TM0, "gamma": GAMMA, "Tg_K": TG, "T_inf_K": T_INF, "U_star_J_per_mol": U_STAR,
+    return {"Tm0_K": TM0, "gamma": GAMMA, "run_to_run_cv": RUN_CV, "Tg_K": TG, "T_inf_K": T_INF, "U_star_J_per_mol": U_STAR,
             "Kg_K2": KG, "T_ref_K": T_REF,
             "groups": {g.group: {"n": g.n, "t_half_ref_s": g.t_half_ref,
                                  "K_ref_per_s": LN2 ** (1 / g.n) / g.t_half_ref}

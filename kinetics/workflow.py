@@ -10,6 +10,7 @@ import time
 from dataclasses import dataclass, field
 from pathlib import Path
 
+import numpy as np
 import pandas as pd
 
 from . import __version__
@@ -35,6 +36,10 @@ class StudyAnalysis:
     seed: int
     options: dict
     isothermal: BatchResult | None = None
+    cooling: object | None = None
+    melting: dict = field(default_factory=dict)
+    growth: dict = field(default_factory=dict)
+    comparison: object | None = None
     tables: dict[str, pd.DataFrame] = field(default_factory=dict)
     failures: list[tuple[str, str]] = field(default_factory=list)
     notes: list[str] = field(default_factory=list)
@@ -82,6 +87,15 @@ def analyse_study(study: Study, *, seed: int = 0, executor=None, sample: bool = 
     options = {"sample": sample, **(fit_options or {})}
     res = StudyAnalysis(study=study, seed=seed, options=options)
     res.failures.extend(study.failures)
+    opts = dict(study.settings.get("analysis") or {})
+    cooling_job = None
+    cool_runs = study.runs(kind="cooling")
+    if cool_runs:
+        if progress:
+            progress(f"cooling runs ({len(cool_runs)}): Jeziorny, Ozawa, Mo, Friedman, Vyazovkin")
+        args = (cool_runs, seed, bool(opts.get("kissinger", False)))
+        cooling_job = (executor.submit(_cooling_job, *args) if executor is not None
+                       else _cooling_job(*args))
     iso = study.runs(kind="isothermal")
     if iso:
         def tick(run_id, done, total):
@@ -94,7 +108,22 @@ def analyse_study(study: Study, *, seed: int = 0, executor=None, sample: bool = 
         res.failures.extend(batch.failures)
         res.tables["isothermal_runs"] = batch.table()
         res.tables["isothermal_posterior"] = posterior_table(batch.fits)
+    if cooling_job is not None:
+        _cooling_collect(res, cooling_job.result() if hasattr(cooling_job, "result")
+                         else cooling_job)
+    if study.runs(kind="heating"):
+        _melting(res)
+    if res.isothermal and res.isothermal.fits:
+        if progress:
+            progress("growth theory, secondary crystallization, crystallinity")
+        _growth(res, opts)
+        _secondary(res, executor)
+        _crystallinity(res)
+    if len(study.groups) > 1:
+        _compare(res, opts)
     convs = [f.conversion for f in (res.isothermal.fits if res.isothermal else ())]
+    if res.cooling is not None:
+        convs += list(res.cooling.conversions)
     res.tables["preparation"] = preparation_table(convs, study.traces)
     if res.failures:
         res.tables["failures"] = pd.DataFrame(res.failures, columns=["run", "message"])
@@ -109,6 +138,206 @@ class FigureFile:
     section: str
     filename: str
     caption: str
+
+
+def _attempt(res: StudyAnalysis, what: str, fn):
+    """Run one analysis; a user-level problem becomes a note, not a failure of the study."""
+    from .errors import CrystkinInputError
+
+    try:
+        return fn()
+    except CrystkinInputError as exc:
+        res.notes.append(f"{what} not possible: {exc}")
+        return None
+
+
+def _add_tables(res: StudyAnalysis, tables: dict, prefix: str = "") -> None:
+    for name, df in tables.items():
+        if df is not None and len(df):
+            res.tables[prefix + name] = df
+
+
+def _cooling_job(traces, seed, kissinger):
+    """Cooling analysis as one job (module level, so it can run in another process)."""
+    import warnings as _w
+
+    from .analyses.nonisothermal import analyse_cooling
+    from .errors import CrystkinInputError, DataQualityWarning
+
+    with _w.catch_warnings():
+        _w.simplefilter("ignore", DataQualityWarning)
+        try:
+            return analyse_cooling(traces, seed=seed, kissinger=kissinger), None
+        except CrystkinInputError as exc:
+            return None, f"cooling analysis not possible: {exc}"
+
+
+def _cooling_collect(res: StudyAnalysis, outcome) -> None:
+    cool, note = outcome
+    if cool is None:
+        res.notes.append(note)
+        return
+    res.cooling = cool
+    res.failures.extend(cool.failures)
+    res.notes.extend(cool.warnings)
+    res.notes.extend(f"caution: {c}" for c in cool.cautions)
+    _add_tables(res, cool.tables())
+
+
+def _melting(res: StudyAnalysis) -> None:
+    from .analyses.melting import hoffman_weeks, marand_xu_srinivas, melting_points
+
+    pts = melting_points(res.study.traces)
+    if pts.empty:
+        return
+    res.tables["melting_points"] = pts
+    for _, r in pts[pts["error"].astype(str) != ""].iterrows():
+        res.failures.append((r["run_id"], r["error"]))
+    ok = pts.dropna(subset=["T_m_K"])
+    hw, msw = [], []
+    for group, sub in ok.groupby("group", sort=False):
+        seed = _seed(res.seed, f"melting:{group}")
+        fit = _attempt(res, f"Hoffman-Weeks ({group})", lambda sub=sub, group=group, seed=seed:
+                       hoffman_weeks(sub["T_c_K"], sub["T_m_K"], seed=seed, group=str(group)))
+        if fit is not None:
+            res.melting[("hoffman_weeks", group)] = fit
+            hw.append(fit.table())
+            res.notes.extend(f"caution: {c}" for c in getattr(fit, "cautions", ()) or ())
+        if len(sub) < 5:
+            res.notes.append(f"Marand-Xu-Srinivas ({group}) not computed: the nonlinear "
+                             f"form needs 5 or more melting points, got {len(sub)}")
+            continue
+        fit2 = _attempt(res, f"Marand-Xu-Srinivas ({group})",
+                        lambda sub=sub, group=group, seed=seed: marand_xu_srinivas(
+                            sub["T_c_K"], sub["T_m_K"], seed=seed, group=str(group)))
+        if fit2 is not None:
+            res.melting[("marand_xu_srinivas", group)] = fit2
+            msw.append(fit2.table())
+    if hw:
+        res.tables["hoffman_weeks"] = pd.concat(hw + msw, ignore_index=True)
+
+
+def _seed(base: int, label: str) -> int:
+    from .analyses.seeds import run_seed
+
+    return run_seed(base, label)
+
+
+def _equilibrium_melting(res: StudyAnalysis, group: str, opts: dict):
+    """Tm0 (K) and its SD: the study file's value, else this group's (or any) Hoffman-Weeks."""
+    tm0 = res.study.settings.get("tm0")
+    if tm0 is not None:
+        return float(tm0), float(opts.get("tm0_sd_K", 0.0)), "study file"
+    for key in (("hoffman_weeks", group), *[k for k in res.melting if k[0] == "hoffman_weeks"]):
+        fit = res.melting.get(key)
+        if fit is not None and "Tm0" in fit.draws:
+            d = np.asarray(fit.draws["Tm0"], dtype=float)
+            return float(np.median(d)), float(np.std(d)), f"Hoffman-Weeks ({key[1]})"
+    return None
+
+
+def _growth(res: StudyAnalysis, opts: dict) -> None:
+    from .analyses.growth import hoffman_lauritzen_from_isotherms
+
+    tg = res.study.settings.get("tg")
+    fits = res.isothermal.fits
+    parts = []
+    for group in dict.fromkeys(f.trace.info.group for f in fits):
+        members = [f for f in fits if f.trace.info.group == group]
+        if len(members) < 3:
+            res.notes.append(f"Hoffman-Lauritzen ({group}) not possible: needs isotherms at 3 "
+                             f"or more temperatures, got {len(members)}")
+            continue
+        tm = _equilibrium_melting(res, group, opts)
+        if tm is None or tg is None:
+            res.notes.append(f"Hoffman-Lauritzen ({group}) not possible: give tm0 and tg in "
+                             "the [study] table of the study file (or melting runs for "
+                             "Hoffman-Weeks)")
+            continue
+        Tm0, Tm0_sd, src = tm
+        fit = _attempt(res, f"Hoffman-Lauritzen ({group})", lambda m=members, g=group, a=Tm0,
+                       b=Tm0_sd: hoffman_lauritzen_from_isotherms(
+                           m, group=g, Tm0=a, Tm0_sd=b, Tg=float(tg),
+                           polymer=res.study.settings.get("polymer"),
+                           seed=_seed(res.seed, f"hl:{g}")))
+        if fit is not None:
+            res.growth[group] = fit
+            t = fit.table()
+            t.insert(1, "Tm0_source", src)
+            parts.append(t)
+    if parts:
+        res.tables["hoffman_lauritzen"] = pd.concat(parts, ignore_index=True)
+
+
+def _secondary_one(args):
+    from .analyses.secondary import compare_secondary
+    from .errors import CrystkinInputError
+
+    trace, conversion, seed = args
+    try:
+        return compare_secondary(trace, conversion, seed=seed, sample=False).row(), None
+    except CrystkinInputError as exc:
+        return None, f"two-stage Avrami ({trace.run_id}) not possible: {exc}"
+
+
+def _secondary(res: StudyAnalysis, executor=None) -> None:
+    jobs = [(f.trace, f.conversion, _seed(res.seed, f"secondary:{f.run_id}"))
+            for f in res.isothermal.fits]
+    it = map(_secondary_one, jobs) if executor is None else executor.map(_secondary_one, jobs)
+    out = []
+    for r, note in it:
+        if r is not None:
+            out.append(r)
+        else:
+            res.notes.append(note)
+    if out:
+        res.tables["secondary"] = (pd.DataFrame(out).sort_values(["group", "T_c_K", "run_id"],
+                                                                 kind="stable")
+                                   .reset_index(drop=True))
+
+
+def _crystallinity(res: StudyAnalysis) -> None:
+    from .analyses.crystallinity import crystallinity_from_enthalpy, crystallinity_table
+
+    st = res.study.settings
+    polymer, dh = st.get("polymer"), st.get("delta_h100")
+    if polymer is None and dh is None:
+        return
+    out = []
+    for f in res.isothermal.fits:
+        d = f.derived.get("enthalpy_J_per_g")
+        if d is None:
+            continue
+        r = _attempt(res, f"crystallinity ({f.run_id})", lambda d=d: crystallinity_from_enthalpy(
+            float(np.median(d)) * 1e3, enthalpy_sd=float(np.std(d)) * 1e3, polymer=polymer,
+            delta_h100=dh))
+        if r is not None:
+            out.append((f.run_id, r))
+    if out:
+        t = crystallinity_table([r for _, r in out])
+        t.insert(0, "run_id", [rid for rid, _ in out])
+        res.tables["crystallinity"] = t
+
+
+def _compare(res: StudyAnalysis, opts: dict) -> None:
+    from .analyses.compare import compare_formulations
+
+    groups = res.study.groups
+    reference = opts.get("reference", groups[0])
+    peaks = None
+    if res.cooling is not None and res.cooling.conversions:
+        by_id = {t.run_id: t for t in res.study.traces}
+        peaks = [(by_id[c.run_id], c) for c in res.cooling.conversions if c.run_id in by_id]
+    iso = res.isothermal.fits if res.isothermal and res.isothermal.fits else None
+    cmp_ = _attempt(res, "formulation comparison", lambda: compare_formulations(
+        isothermal_fits=iso, cooling_peaks=peaks, reference=reference,
+        run_to_run_cv=opts.get("run_to_run_cv"), seed=_seed(res.seed, "compare")))
+    if cmp_ is None:
+        return
+    res.comparison = cmp_
+    _add_tables(res, cmp_.tables())
+    res.notes.extend(f"verdict: {v}" for v in cmp_.verdicts)
+    res.notes.extend(cmp_.warnings)
 
 
 def _write_figures(analysis: StudyAnalysis, out: Path) -> list[FigureFile]:

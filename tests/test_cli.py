@@ -38,7 +38,7 @@ def test_demo_console_script_end_to_end(tmp_path):
     assert proc.returncode == 0, proc.stderr
     assert "Traceback" not in proc.stderr
     table = pd.read_csv(out / "tables" / "isothermal_runs.csv")
-    assert len(table) == 9
+    assert len(table) == 12
     for col in ("n", "n_lo95", "n_hi95", "t_half_s", "t_half_s_lo95", "t_half_s_hi95",
                 "k_per_min_n", "k_per_s_n", "induction_time_s", "enthalpy_J_per_g",
                 "t_peak_s", "t_half_measured_s", "n_linear", "r2_linear", "converged"):
@@ -99,7 +99,7 @@ def test_one_bad_run_is_listed_and_others_are_analysed(tmp_path, demo_study):
     assert r.exit_code == 1, r.output
     assert "missing-run" in r.stderr and "nowhere.csv" in r.stderr
     t = pd.read_csv(tmp_path / "o" / "tables" / "isothermal_runs.csv")
-    assert len(t) == 9
+    assert len(t) == 12
     f = pd.read_csv(tmp_path / "o" / "tables" / "failures.csv")
     assert f["run"].tolist() == ["missing-run"]
 

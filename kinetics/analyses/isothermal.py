@@ -133,7 +133,7 @@ class AvramiHeatFlowBasis:
 
 
 def avrami_heat_flow_problem(trace: Trace, conversion: Conversion, *, transient: str = "auto",
-                             max_points: int = 400, start: dict | None = None) -> FitProblem:
+                             max_points: int = 250, start: dict | None = None) -> FitProblem:
     """Bind the Avrami heat-flow model to one isothermal run.
 
     Parameters
@@ -321,7 +321,7 @@ def _derive(draws: dict, trace: Trace, conversion: Conversion) -> dict:
 
 
 def fit_isotherm(trace: Trace, *, conversion: Conversion | None = None, seed: int = 0,
-                 sample: bool = True, transient: str = "auto", max_points: int = 400,
+                 sample: bool = True, transient: str = "auto", max_points: int = 250,
                  x_range=(0.03, 0.20), prep_options: dict | None = None,
                  sampler_options: dict | None = None, progress: bool | str = False) -> IsothermFit:
     """Avrami parameters of one isothermal run, with a posterior.

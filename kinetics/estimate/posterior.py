@@ -258,7 +258,7 @@ def conditional_draws(problem: FitProblem, theta: np.ndarray, rng, *, chunk: int
 
 def sample_posterior(problem: FitProblem, *, seed: int = 0, start: LeastSquaresResult | None = None,
                      n_walkers: int | None = None, max_steps: int = 20_000,
-                     check_every: int = 250, tau_factor: float = 50.0, min_steps: int = 500,
+                     check_every: int = 100, tau_factor: float = 50.0, min_steps: int = 300,
                      init_scale: float = 0.1, progress: bool | str = False) -> Posterior:
     """Sample the posterior of a problem with emcee.
 

@@ -76,8 +76,18 @@ def _finish(analysis, out: Path) -> None:
         with pd.option_context("display.width", 160, "display.max_columns", 20,
                                "display.float_format", "{:.4g}".format):
             click.echo(summary.to_string(index=False))
-    click.echo(f"\nResults written to {out} (report.md, tables/, figures/, draws/) "
-               f"in {analysis.seconds:.1f} s.")
+    cool = analysis.tables.get("cooling_runs")
+    if cool is not None and not cool.empty:
+        cols = [c for c in ("run_id", "group", "beta_K_per_min", "T_onset_degC", "T_peak_degC",
+                            "enthalpy_J_per_g") if c in cool.columns]
+        click.echo("\n" + cool[cols].to_string(index=False, float_format="{:.4g}".format))
+    verdicts = [n[len("verdict: "):] for n in analysis.notes if n.startswith("verdict: ")]
+    if verdicts:
+        click.echo("\nComparison of formulations:")
+        for v in verdicts:
+            click.echo("  - " + v)
+    click.echo(f"\nResults written to {out} (report.html, report.md, tables/, figures/, "
+               f"draws/) in {analysis.seconds:.1f} s.")
     if analysis.failures:
         click.echo(f"\n{len(analysis.failures)} run(s) could not be analysed:", err=True)
         for run, msg in analysis.failures:
@@ -234,7 +244,11 @@ def peek(file, kind, temperature, rate, mass, exotherm):
                 _fail("cooling-run preparation is not available in this version")
             conv = prepare_cooling(trace)
         else:
-            click.echo("heating run: melting analysis is shown by 'crystkin analyze'")
+            from kinetics.prep.melting import melting_peak
+            pk = melting_peak(trace)
+            click.echo(f"melting peak: {celsius(pk.temperature):.2f} °C (endotherm)")
+            for w in pk.warnings:
+                click.echo(f"warning:     {w}")
             return
         click.echo(f"exotherm:    {conv.exotherm}"
                    + (" (given)" if info.exotherm else " (detected from the data)"))

@@ -379,6 +379,22 @@ def _write_figures(analysis: StudyAnalysis, out: Path) -> list[FigureFile]:
             put("diagnostics", figures.posterior_pairs_figure(first),
                 f"posterior_{first.run_id}.png",
                 f"Run {first.run_id}: posterior draws of n, t_half and t0.")
+    if analysis.comparison is not None:
+        from .report.compare_figures import comparison_figures
+
+        ref = analysis.comparison.reference
+        texts = {
+            "half_time_ratio": f"Half-time of each formulation divided by that of {ref}, "
+                               "against hold temperature (median, 95 % interval; below 1 = faster).",
+            "cooling_shift": f"Shift of the cooling peak (filled) and onset (open) temperature "
+                             f"against {ref}, by cooling rate (95 % intervals).",
+            "rate_curve_ratio": f"Rate-model ratio K(T) of each formulation over {ref} "
+                                "(95 % band).",
+            "nucleation_efficiency": "Nucleation efficiency on the self-nucleation scale "
+                                     "(95 % intervals).",
+        }
+        for name, fig in comparison_figures(analysis.comparison).items():
+            put("compare", fig, f"compare_{name}.png", texts.get(name, name.replace("_", " ")))
     return written
 
 

@@ -111,6 +111,8 @@ def test_one_bad_run_is_listed_and_others_are_analysed(tmp_path, demo_study):
         f"{i},125,{'abc' if i == 5 else 0.1}\n" for i in range(20)), "row"),
     ("time (s),temperature (C),heat flow (mW)\n" + "".join(
         f"{20 - i},125,0.1\n" for i in range(20)), "time"),
+    ("time (s),temperature (C),heat flow (mW)\n" + "".join(
+        f"{i},125,{'' if i == 7 else 0.1}\n" for i in range(20)), "row"),
     ("time (parsec),temperature (C),heat flow (mW)\n" + "".join(
         f"{i},125,0.1\n" for i in range(20)), "unit"),
 ])

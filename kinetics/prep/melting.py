@@ -117,6 +117,11 @@ def melting_peak(trace: Trace, *, window=None, exotherm=None,
             f"{hi - 273.15:.1f} degC; widen the window", source=where)
     T = T_all[sel]
     e = e_all[sel]
+    if not np.ptp(T) >= 1.0:
+        raise CrystkinInputError(
+            f"run {trace.run_id}: the temperature changes by only {np.ptp(T):.2g} K in the "
+            "window, so no melting peak can be placed; check that this is a heating run and "
+            "that the temperature column is the sample temperature", source=where)
     if np.any(np.diff(T) < 0):
         warnings.append("temperature does not rise steadily in the window; check the segment")
     k = max(5, len(T) // 20)
@@ -138,12 +143,13 @@ def melting_peak(trace: Trace, *, window=None, exotherm=None,
     h = max(2, w // 2)
     a, b = max(0, main - h), min(len(T), main + h + 1)
     Tp = float(T[main])
-    if b - a >= 5:
+    if b - a >= 5 and np.ptp(T[a:b]) > 0:
         Tc = T[a:b] - T[main]
         c2, c1, _ = np.polyfit(Tc, us[a:b], 2)
         if c2 < 0:
             v = -c1 / (2 * c2)
-            if abs(v) <= abs(T[b - 1] - T[a]) / 2:
+            if (abs(v) <= abs(T[b - 1] - T[a]) / 2
+                    and T[a:b].min() <= T[main] + v <= T[a:b].max()):
                 Tp = float(T[main] + v)
     others = tuple(float(T[p]) for p in peaks if p != main and us[p] >= 0.3 * height)
     if others:

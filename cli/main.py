@@ -7,7 +7,6 @@ Exit codes: 0 success; 1 finished, but some runs could not be analysed (listed);
 from __future__ import annotations
 
 import sys
-import time
 from pathlib import Path
 
 import click

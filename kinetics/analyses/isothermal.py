@@ -26,7 +26,6 @@ from ..dataset import Conversion, Trace
 from ..errors import CrystkinInputError
 from ..estimate import (
     LeastSquaresResult,
-    LineFit,
     Posterior,
     fit_least_squares,
     fit_line,
@@ -37,11 +36,11 @@ from ..estimate.problem import FitProblem
 from ..models.avrami import (
     LN2,
     avrami_cell_rate,
-    avrami_conversion,
     avrami_k_from_half_time,
     avrami_linearised,
 )
 from ..models.params import LogUniform, Parameter, Uniform
+from ..prep.cells import block_average as _block_average
 from ..units import celsius
 from .seeds import run_seed
 
@@ -85,23 +84,6 @@ def linearised_avrami(conversion: Conversion, *, x_range=(0.03, 0.20), t0=None) 
     line = fit_line(x, y, where=f"run {conversion.run_id} linearised Avrami")
     return {"n": line.slope, "ln_k": line.intercept, "r2": line.r2, "n_points": line.n,
             "x_range": (lo, hi), "t0": origin, "line": line}
-
-
-def _block_average(t, y, max_points):
-    """Average equal blocks of samples; returns cell edges and block means."""
-    n = len(t)
-    m = max(1, int(np.ceil(n / max_points)))
-    nb = n // m
-    t = t[: nb * m]
-    y = y[: nb * m]
-    mid = 0.5 * (t[1:] + t[:-1])
-    first = t[0] - 0.5 * (t[1] - t[0])
-    last = t[-1] + 0.5 * (t[-1] - t[-2])
-    edges_all = np.concatenate([[first], mid, [last]])
-    edges = edges_all[::m]
-    if len(edges) == nb:
-        edges = np.append(edges, last)
-    return edges, y.reshape(nb, m).mean(axis=1), m
 
 
 @dataclass(frozen=True)
@@ -177,7 +159,6 @@ def avrami_heat_flow_problem(trace: Trace, conversion: Conversion, *, transient:
         raise CrystkinInputError(f"run {trace.run_id}: fewer than 20 points after the start-up "
                                  "transient; the record is too short to fit")
     edges, y, block = _block_average(t_all[sel], q_all[sel], max_points)
-    centres = 0.5 * (edges[1:] + edges[:-1])
     duration = float(edges[-1] - edges[0])
     t_ref = float(edges[-1])
 
@@ -390,7 +371,8 @@ def fit_isotherm(trace: Trace, *, conversion: Conversion | None = None, seed: in
     meas = conversion.time_at(0.5) - conversion.hold_start
     model = float(np.median(derived["t50_from_hold_s"]))
     if np.isfinite(meas) and model > 0 and abs(meas - model) > 0.05 * model:
-        flags.append(f"measured and model time to 50 % differ by {100 * (meas - model) / model:+.0f} %")
+        diff = 100 * (meas - model) / model
+        flags.append(f"measured and model time to 50 % differ by {diff:+.0f} %")
     prov = {"window_s": conversion.window, "baseline": conversion.baseline,
             "hold_start_s": conversion.hold_start, "transient_end_s": conversion.transient_end,
             "exotherm": conversion.exotherm, "fit": problem.provenance,

@@ -35,24 +35,15 @@ from ..models.avrami import avrami_cell_rate, avrami_k_from_half_time
 from ..models.growth import two_stage_conversion
 from ..models.params import LogUniform, Parameter, Uniform
 from ..units import celsius
-from .isothermal import _block_average, avrami_heat_flow_problem
+from .isothermal import avrami_heat_flow_problem
 
 __all__ = ["SecondaryResult", "two_stage_heat_flow_problem", "compare_secondary",
            "secondary_table"]
 
 
 def _plain_cells(trace: Trace, conversion: Conversion, plain: FitProblem, max_points: int):
-    """Cell edges of the plain problem's data (same selection and block averaging)."""
-    sign = 1.0 if conversion.exotherm == "up" else -1.0
-    t_all = trace.time
-    start = plain.provenance["fit_from_s"]
-    sel = t_all >= start
-    edges, y, _ = _block_average(t_all[sel], sign * trace.heat_flow[sel], max_points)
-    if len(y) != len(plain.data) or not np.allclose(y, plain.data, rtol=1e-12, atol=0):
-        raise CrystkinInputError(
-            f"run {trace.run_id}: cannot rebuild the cells of the Avrami fit (uneven sampling?);"
-            " resample the run to a constant time step")
-    return edges
+    """Cell edges of the plain Avrami problem (same selection and block averaging)."""
+    return plain.basis.edges
 
 
 def two_stage_heat_flow_problem(trace: Trace, conversion: Conversion, *, transient: str = "auto",

@@ -11,18 +11,23 @@ Likelihood: on each run's heat-flow signal, block-averaged into cells,
 
     q_cell = b0 + b1 (t - t_end) [+ S <X>_cell] + A [X(e_{i+1}) - X(e_i)] / (e_{i+1} - e_i)
 
-with the event area A, baseline b0, b1 (and for cooling runs a heat-capacity
-step S following the conversion) linear coefficients of that run and one
-unknown noise level per run, all integrated out analytically by the shared
-engine; the sampler explores only n, the rate level and Kg (and U*, T_inf, Tm0
-when they are given Normal priors instead of fixed values).
+with the event area A, baseline b0, b1 (for cooling runs a heat-capacity step S
+following the conversion, for isotherms a start-up transient c exp(-(t - t_hold)/tau))
+linear coefficients of that run and one unknown noise level per run, all
+integrated out analytically by the shared engine; the sampler explores n, the
+rate level, Kg, the isotherms' induction times (and U*, T_inf, Tm0 when they are
+given Normal priors instead of fixed values).
 
 * Isothermal holds: theta = K(T_hold) (t - t0) after the run's induction time
-  t0, which is **fixed** at the value of that run's own Avrami heat-flow least
-  squares (``isotherm_t0="avrami"``, default) or at the event start found by
-  the preparation (``"preparation"``); T_hold is the median recorded sample
-  temperature over the fitted part. Fitting starts at the end of the start-up
-  transient.
+  t0, T_hold the median recorded sample temperature. Each hold is first fitted
+  alone (Avrami heat-flow least squares, :func:`kinetics.analyses.isothermal.fit_isotherm`,
+  start-up transient modelled); its t0 starts, and bounds, a per-run t0 parameter
+  of the joint fit (``isotherm_t0="fit"``, default), and its transient decay
+  time is fixed while the transient amplitude is a linear coefficient. t0 can
+  also be **fixed** at that run's own Avrami value (``"avrami"``) or at the event
+  start of the preparation (``"preparation"``); on invented test data both fixed
+  choices gave Kg intervals that missed the true value (the per-run t0 error is
+  carried into the half-times), which is why t0 is fitted by default.
 * Cooling runs: theta is a cumulative trapezoidal sum of K on the run's own
   grid from the start of the record (the melt), with the sample temperature
   the cooling preparation gives (recorded temperature plus its thermal-lag

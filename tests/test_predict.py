@@ -16,16 +16,16 @@ from scipy.constants import R
 from scipy.integrate import solve_ivp
 
 from kinetics import demo
-from kinetics.cautions import PROCESS_CAUTION
-from kinetics.errors import CrystkinInputError, DataQualityWarning
-from kinetics.io.profile import constant_rate_profile, read_profile
-from kinetics.models.avrami import avrami_conversion
 from kinetics.analyses.predict import (
     SimulationModel,
     predict_from_profile,
     predict_profile,
     rate_constant,
 )
+from kinetics.cautions import PROCESS_CAUTION
+from kinetics.errors import CrystkinInputError, DataQualityWarning
+from kinetics.io.profile import constant_rate_profile, read_profile
+from kinetics.models.avrami import avrami_conversion
 
 N = 2.7
 

@@ -256,7 +256,7 @@ def _start_values(specs, T_ref, U_star, T_inf, Tm0, iso_fits):
                 lr.append(-np.log(f.least_squares["t_half"]))
         else:
             c = sp.conversion
-            t30, t50, t70 = c.time_at(0.3), c.time_at(0.5), c.time_at(0.7)
+            t30, t70 = c.time_at(0.3), c.time_at(0.7)
             if np.isfinite(t30) and np.isfinite(t70) and t70 > t30:
                 rate = 0.4 / (t70 - t30)
                 K = rate / (n0 * 0.5 * LN2 ** ((n0 - 1) / n0))
@@ -820,7 +820,9 @@ def fit_global_rate(isothermal, cooling, *, Tm0, T_inf, U_star=6276.0, priors=No
     start = _start_values(fitted, T_ref, U_c, Tinf_c, Tm0_c, iso_fits)
     problem, model_draws_fn, t0_cols = _build_problem(fitted, T_ref=T_ref, priors=priors,
                                                       start=start, **consts)
+    t_lsq = _time.perf_counter()
     lsq = fit_least_squares(problem)
+    lsq_seconds = _time.perf_counter() - t_lsq
     p = len(problem.parameters)
     post = None
     if sample:
@@ -845,7 +847,8 @@ def fit_global_rate(isothermal, cooling, *, Tm0, T_inf, U_star=6276.0, priors=No
 
     Tg_val = float(Tg) if Tg is not None else Tinf_c + T_INF_OFFSET.value
     Tg_src = ("given" if Tg is not None else
-              f"T_inf + {T_INF_OFFSET.value:g} K (the usual T_inf = Tg - 30 K; {T_INF_OFFSET.source})")
+              f"T_inf + {T_INF_OFFSET.value:g} K (the usual T_inf = Tg - 30 K; "
+              f"{T_INF_OFFSET.source})")
 
     S = len(md)
     bi = np.unique(np.linspace(0, S - 1, min(_N_BAND_DRAWS, S)).round().astype(int))
@@ -890,7 +893,8 @@ def fit_global_rate(isothermal, cooling, *, Tm0, T_inf, U_star=6276.0, priors=No
             "Tg_source": Tg_src, "seed": seed, "max_points_per_run": max_points_per_run,
             "substeps": substeps, "cooling_step": cooling_step,
             "sampler": None if post is None else post.provenance.get("sampler"),
-            "least_squares_seconds": None, "method": "posterior" if sample else "least squares",
+            "least_squares_seconds": lsq_seconds,
+            "method": "posterior" if sample else "least squares",
             "runs": {s.run_id: s.provenance for s in specs_all}}
     return GlobalRateResult(
         specs=tuple(fitted), held_out=tuple(held), problem=problem, least_squares=lsq,

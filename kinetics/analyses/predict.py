@@ -40,7 +40,6 @@ import pandas as pd
 from ..cautions import PROCESS_CAUTION
 from ..errors import CrystkinInputError, DataQualityWarning
 from ..io.profile import TemperatureProfile
-from ..estimate import summarise
 from ..models.hoffman_lauritzen import hl_ln_rate
 from ..models.nakamura import LN2, nakamura_conversion
 from ..units import celsius
@@ -525,9 +524,3 @@ def predict_from_profile(model: SimulationModel, profile, **options) -> Predicti
     """:func:`predict_profile` on a :class:`kinetics.io.profile.TemperatureProfile`."""
     return predict_profile(model, profile.time, profile.temperature,
                            row_numbers=profile.row_numbers, source=profile.source, **options)
-
-
-def draws_summary(draws) -> dict:
-    """Median and 95 % interval of one parameter's draws."""
-    s = summarise(draws)
-    return {"median": s["median"], "lo95": s["lo95"], "hi95": s["hi95"]}

@@ -64,8 +64,9 @@ from ..estimate.problem import FitProblem
 from ..models.hoffman_lauritzen import hl_ln_rate
 from ..models.nakamura import nakamura_conversion, nakamura_integral
 from ..models.params import Normal, Parameter, Uniform
+from ..prep.cells import block_average as _block_average
 from ..units import celsius
-from .isothermal import _block_average, fit_isotherm
+from .isothermal import fit_isotherm
 from .predict import PARAMETER_NAMES, SimulationModel, rate_constant
 
 __all__ = ["GlobalRateResult", "fit_global_rate", "global_rate_problem", "RunSpec"]

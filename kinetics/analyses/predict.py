@@ -303,8 +303,12 @@ class Prediction:
         return "\n".join(lines)
 
 
-def _fmt_time(t: float) -> str:
-    return f"{t:.3g} s" if abs(t) < 600 else f"{t / 60:.3g} min"
+def _fmt_time(t: float, spread: float = float("nan")) -> str:
+    """Time in s (min above 10 min), with enough digits to show ``spread``."""
+    digits = 3
+    if np.isfinite(spread) and spread > 0 and t != 0:
+        digits = int(np.clip(np.ceil(np.log10(abs(t) / spread)) + 1, 3, 6))
+    return f"{t:.{digits}g} s" if abs(t) < 600 else f"{t / 60:.{digits}g} min"
 
 
 def _evaluation_grid(t, T, max_grid: int):
@@ -357,9 +361,10 @@ def _target(X, t, T, x, Xmed, t_glass, Tg):
     Tq = [float(v) if v >= T.min() else float("nan") for v in Tq]
     pct = f"{100 * x:g} %"
     if p >= 0.5:
-        s = (f"{pct} conversion at t = {_fmt_time(tq[0])} (95 % interval "
-             f"{_fmt_time(tq[1])} to ")
-        s += (f"{_fmt_time(tq[2])})" if np.isfinite(tq[2]) else "not reached)")
+        w = tq[2] - tq[1] if np.isfinite(tq[2]) else float("nan")
+        s = (f"{pct} conversion at t = {_fmt_time(tq[0], w)} (95 % interval "
+             f"{_fmt_time(tq[1], w)} to ")
+        s += (f"{_fmt_time(tq[2], w)})" if np.isfinite(tq[2]) else "not reached)")
         s += f", at {celsius(Tq[0]):.1f} degC"
         if np.isfinite(Tq[1]) and np.isfinite(Tq[2]):
             s += f" ({celsius(Tq[1]):.1f} to {celsius(Tq[2]):.1f} degC)"

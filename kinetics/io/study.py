@@ -33,6 +33,10 @@ A study file describes one set of DSC runs, as a lab notebook would::
     notes = "..."                 # optional, free text
 
     [analysis]                    # optional: options for the analyses, kept as a plain table
+    reference = "neat"            # checked here when present: a group name in quotes,
+    kissinger = false             #   true/false, a fraction in [0, 1] and a number
+    run_to_run_cv = 0.08          #   in kelvin (the key names the unit)
+    tm0_sd_K = 2.0
 
 Rules:
 
@@ -42,7 +46,9 @@ Rules:
 * Unknown keys are errors that list the allowed keys, so a typo cannot be ignored.
 * ``name`` and ``group`` become parts of output file names, so they may contain only
   letters, digits, ``-``, ``_`` and ``.``, and may not start with ``.`` or ``-``.
-* The study file never says where outputs go; that is the command line's job.
+* The study file never says where outputs go; that is the command line's job. An
+  ``[analysis]`` key such as ``out`` or ``output_dir`` is an error that says so.
+* Limits: at most ``MAX_RUNS`` runs and ``MAX_STUDY_BYTES`` bytes per study file.
 * A run whose data file is missing or unreadable does not stop the study: it is listed in
   :attr:`Study.failures` with its message, and the other runs are read. A mistake in the
   study file itself (syntax, unknown key, bare number, bad name) stops reading at once.
@@ -51,6 +57,7 @@ Rules:
 from __future__ import annotations
 
 import difflib
+import math
 import re
 import tomllib
 from dataclasses import dataclass, field
@@ -62,7 +69,16 @@ from ..units import parse_quantity, parse_unit
 from .tables import ROLES, read_trace
 from .writers import check_safe_name
 
-__all__ = ["read_study", "STUDY_KEYS", "RUN_KEYS", "DEFAULT_KEYS", "TOP_LEVEL_KEYS"]
+__all__ = ["read_study", "STUDY_KEYS", "RUN_KEYS", "DEFAULT_KEYS", "TOP_LEVEL_KEYS",
+           "MAX_RUNS", "MAX_STUDY_BYTES"]
+
+#: Largest number of [[run]] blocks in one study file (our choice: a year of autosampler runs).
+MAX_RUNS = 10_000
+#: Largest study file accepted, bytes (10,000 run blocks take about 2 MB).
+MAX_STUDY_BYTES = 16 * 2**20
+_OUTPUT_WORDS = ("out", "output", "outdir", "out_dir", "output_dir", "output_folder",
+                 "out_folder", "folder", "dir", "directory", "destination", "dest", "results",
+                 "results_dir", "report_dir", "path", "prefix")
 
 TOP_LEVEL_KEYS = ("study", "defaults", "run", "analysis")
 STUDY_KEYS = ("name", "polymer", "delta_h100", "tm0", "tg", "description")
@@ -116,6 +132,7 @@ def read_study(path) -> Study:
     analysis = doc.get("analysis", {})
     if not isinstance(analysis, dict):
         raise CrystkinInputError("[analysis] must be a table of options", source=where)
+    _check_analysis(analysis, where)
     settings["analysis"] = analysis
     defaults = doc.get("defaults", {})
     if not isinstance(defaults, dict):
@@ -132,6 +149,11 @@ def read_study(path) -> Study:
             source=where)
     if not isinstance(runs, list) or not all(isinstance(r, dict) for r in runs):
         raise CrystkinInputError("'run' must be a list of [[run]] blocks", source=where)
+    if len(runs) > MAX_RUNS:
+        raise CrystkinInputError(
+            f"{len(runs)} runs, more than the limit of {MAX_RUNS} per study file; split the "
+            "study into several files (for example one per formulation or per week)",
+            source=where)
 
     plans = [_plan_run(k + 1, raw, defaults, settings, path, where)
              for k, raw in enumerate(runs)]
@@ -166,6 +188,13 @@ def _load_toml(path: Path, where: str) -> dict:
             "study file not found" if not path.exists() else "is not a file",
             source=where)
     try:
+        size = path.stat().st_size
+        if size > MAX_STUDY_BYTES:
+            raise CrystkinInputError(
+                f"the study file is {size / 2**20:.0f} MB, more than the limit of "
+                f"{MAX_STUDY_BYTES // 2**20} MB; a study file lists runs and names their data "
+                "files, it does not hold the data: split it or check that this is the study "
+                "file", source=where)
         data = path.read_bytes()
     except OSError as exc:
         raise CrystkinInputError(f"cannot read the study file ({exc.strerror or exc})",
@@ -187,6 +216,31 @@ def _load_toml(path: Path, where: str) -> dict:
                 "line (quantities are quoted strings such as \"125 degC\")",
                 source=where) from exc
         raise CrystkinInputError(f"TOML syntax error: {msg}", source=where) from exc
+
+
+def _check_analysis(analysis: dict, where: str) -> None:
+    for key, value in analysis.items():
+        if str(key).lower() in _OUTPUT_WORDS:
+            raise CrystkinInputError(
+                f"[analysis] key '{key}': the study file never says where outputs go; remove "
+                "it and give the output folder on the command line (--out)", source=where)
+        bad = None
+        if key == "reference" and not isinstance(value, str):
+            bad = "a group name in quotes"
+        elif key == "kissinger" and not isinstance(value, bool):
+            bad = "true or false"
+        elif key in ("run_to_run_cv", "tm0_sd_K"):
+            ok = (isinstance(value, (int, float)) and not isinstance(value, bool)
+                  and math.isfinite(value) and value >= 0)
+            if key == "run_to_run_cv" and ok and value > 1:
+                ok = False
+            if not ok:
+                bad = ("a fraction from 0 to 1, such as 0.08 for 8 %" if key == "run_to_run_cv"
+                       else "a number of kelvin, 0 or more, without quotes (the key names the "
+                            "unit)")
+        if bad:
+            raise CrystkinInputError(
+                f"[analysis] key '{key}' must be {bad}, got {value!r}", source=where)
 
 
 def _check_keys(table: dict, allowed, what: str, where: str) -> None:

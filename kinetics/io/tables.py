@@ -81,7 +81,8 @@ def read_trace(path, *, info: RunInfo | None = None, columns: dict | None = None
     ----------
     path : str or Path
         The table file. ``.xlsx``/``.xlsm`` are read as workbooks, anything else as text
-        (UTF-8 with or without BOM, UTF-16 with BOM, else Latin-1).
+        (UTF-8 with or without BOM, UTF-16 with BOM or recognised without one, else
+        Latin-1).
     info : RunInfo, optional
         What the study file says about the run. When None, a minimal RunInfo is guessed
         from the data (see Notes); this is what a quick look at one file uses.
@@ -186,6 +187,7 @@ def read_trace(path, *, info: RunInfo | None = None, columns: dict | None = None
     t_raw = raw["time"]
     time = unit_of["time"].to_si(t_raw)
     _check_monotonic(time, t_raw, row_numbers, names[roles["time"]], where)
+    _check_time_unit_switch(t_raw, row_numbers, names[roles["time"]], where)
 
     metadata = _metadata(table, header.names_row)
     file_mass = _mass_from_metadata(metadata)
@@ -210,6 +212,7 @@ def read_trace(path, *, info: RunInfo | None = None, columns: dict | None = None
             extra["warnings"] = (note,)
     if roles["temperature"] is not None:
         temperature = unit_of["temperature"].to_si(raw["temperature"])
+        _check_kelvin_celsius_jump(temperature, row_numbers, names[roles["temperature"]], where)
     elif info is not None and info.kind == "isothermal" and info.temperature is not None:
         temperature = np.full(n, float(info.temperature))
         extra["temperature_filled"] = True
@@ -363,6 +366,8 @@ def _load_text(path: Path, where: str, *, decimal) -> _Table:
             raise CrystkinInputError(
                 "starts like UTF-16 text but cannot be decoded; export it again as UTF-8 CSV",
                 source=where) from exc
+    elif (utf16 := _utf16_without_bom(data)) is not None:
+        text = data[:len(data) - len(data) % 2].decode(utf16, errors="replace")
     else:
         try:
             text = data.decode("utf-8-sig")
@@ -380,6 +385,20 @@ def _load_text(path: Path, where: str, *, decimal) -> _Table:
                                  source=where)
     delimiter, dec = _detect_format(lines, decimal, where)
     return _Table(lines=lines, delimiter=delimiter, decimal=dec)
+
+
+def _utf16_without_bom(data: bytes) -> str | None:
+    """'utf-16-le' or 'utf-16-be' when the bytes look like mostly-ASCII UTF-16 text."""
+    data = data[:len(data) - len(data) % 2]
+    half = len(data) // 2
+    if half < 2:
+        return None
+    even, odd = data[0::2].count(0), data[1::2].count(0)
+    if odd > 0.9 * half and even < 0.1 * half:
+        return "utf-16-le"
+    if even > 0.9 * half and odd < 0.1 * half:
+        return "utf-16-be"
+    return None
 
 
 def _load_xlsx(path: Path, where: str, *, decimal, sheet, max_rows) -> _Table:
@@ -765,6 +784,41 @@ def _check_monotonic(time, raw, row_numbers, name, where):
         f"time {what} ({raw[k]:g} then {raw[k + 1]:g}); time must increase row by row: sort "
         "the file or delete repeated rows", source=where, row=int(row_numbers[k + 1]),
         column=name)
+
+
+def _check_time_unit_switch(raw, row_numbers, name, where, *, edge=5):
+    """Refuse a time column whose unit changes part way (min then s, h then s or min)."""
+    n = len(raw)
+    if n < 2 * edge + 2:
+        return
+    dt = np.diff(raw)
+    ratio = raw[1:] / np.where(raw[:-1] > 0, raw[:-1], np.nan)
+    for factor in (60.0, 3600.0):
+        for k in np.flatnonzero(np.abs(ratio / factor - 1.0) < 0.02):
+            if k < edge or k > n - edge - 2:
+                continue
+            step = np.median(dt[k + 1:k + 1 + edge]) / np.median(dt[k - edge:k])
+            if abs(step / factor - 1.0) < 0.05:
+                raise CrystkinInputError(
+                    f"time jumps from {raw[k]:g} to {raw[k + 1]:g} and its step grows "
+                    f"{factor:g}-fold here: part of the column seems to be in another unit; "
+                    "export the run again with one time unit", source=where,
+                    row=int(row_numbers[k + 1]), column=name)
+
+
+def _check_kelvin_celsius_jump(temperature, row_numbers, name, where):
+    """Refuse a temperature column that switches between kelvin and degrees Celsius."""
+    d = np.diff(temperature)
+    if d.size < 3:
+        return
+    typical = float(np.median(np.abs(d)))
+    jumps = np.flatnonzero((np.abs(np.abs(d) - 273.15) < 0.6) & (typical < 5.0))
+    if jumps.size:
+        k = int(jumps[0])
+        raise CrystkinInputError(
+            f"temperature jumps by {d[k]:+.2f} K from one row to the next: part of the column "
+            "seems to be in kelvin and part in degrees Celsius; export the run again with one "
+            "temperature unit", source=where, row=int(row_numbers[k + 1]), column=name)
 
 
 # -- metadata and guessing ------------------------------------------------------------------

@@ -66,7 +66,7 @@ with warnings.catch_warnings():
 format_table(preparation_table(conversions, holds),
              columns=["run_id", "T_set_degC", "window_start_s", "window_end_s",
                       "transient_end_s", "induction_time_s", "baseline",
-                      "enthalpy_J_per_g"]).frame
+                      "enthalpy_J_per_g"])
 
 # %% [markdown]
 # ## 3. Avrami fits with posteriors
@@ -83,7 +83,7 @@ with warnings.catch_warnings():
                                                "check_every": 100})
 table = batch.table()
 format_table(table, columns=["run_id", "T_c_degC", "n", "k_per_min_n", "t_half_s",
-                             "induction_time_s", "n_linear", "r2_linear", "converged"]).frame
+                             "induction_time_s", "n_linear", "r2_linear", "converged"])
 
 # %% [markdown]
 # Each cell is the posterior median with its 95 % interval, rounded to the uncertainty. The
@@ -122,7 +122,7 @@ figures.posterior_pairs_figure(fits[0])
 hl = hoffman_lauritzen_from_isotherms(batch.fits, Tm0=study.settings["tm0"],
                                       Tg=study.settings["tg"], seed=0)
 format_table(hl.table(), columns=["model", "n_points", "Kg_K2", "ln_prefactor", "Tm0_K",
-                                  "T_inf_K", "flags"]).frame
+                                  "T_inf_K", "flags"])
 
 # %%
 hoffman_lauritzen_figure(hl)

@@ -69,12 +69,12 @@ fit = fit_global_rate(holds, scans, Tm0=study.settings["tm0"],
                       T_inf=study.settings["tg"] - 30.0, hold_out=[held_back], seed=0,
                       max_points_per_run=150,
                       sampler_options={"max_steps": 400, "min_steps": 200, "check_every": 100})
-format_table(fit.table()).frame
+format_table(fit.table())
 
 # %%
 for s in fit.statements:
     print(s)
-format_table(fit.checks).frame
+format_table(fit.checks)
 
 # %%
 half_time_law_figure(fit)
@@ -93,7 +93,7 @@ model_json, table_csv = write_simulation_model(fit, folder / "px40_rate_model.js
                                                folder / "px40_rate_model.csv",
                                                study_name=study.name)
 model = read_simulation_model(model_json)
-format_table(model.summary()).frame
+format_table(model.summary())
 
 # %% [markdown]
 # ## 4. Prediction on a cooling profile

@@ -59,7 +59,7 @@ with warnings.catch_warnings():
     batch = analyse_isotherms(study.runs(kind="isothermal"), seed=0, sample=False)
     cooling = [(t, prepare_cooling(t)) for t in study.runs(kind="cooling")]
 format_table(batch.table(), columns=["run_id", "group", "T_c_degC", "n", "t_half_s",
-                                     "method"]).frame
+                                     "method"])
 
 # %% [markdown]
 # ## 3. The comparison
@@ -76,13 +76,13 @@ for verdict in result.verdicts:
 # %%
 tables = result.tables()
 format_table(tables["compare_half_time"],
-             columns=["group", "T_c_degC", "t_half_ratio", "p_faster", "finding"]).frame
+             columns=["group", "T_c_degC", "t_half_ratio", "p_faster", "finding"])
 
 # %%
-format_table(tables["compare_cooling"]).frame
+format_table(tables["compare_cooling"])
 
 # %%
-format_table(tables["run_to_run_scatter"]).frame
+format_table(tables["run_to_run_scatter"])
 
 # %% [markdown]
 # ## 4. Figures

@@ -273,6 +273,22 @@ class FormattedTable:
     align: tuple[str, ...]
     notes: tuple[str, ...] = ()
 
+    def to_string(self) -> str:
+        """Plain text: the table, then its notes."""
+        text = self.frame.to_string(index=False) if self.frame.shape[1] else ""
+        return "\n".join([text, *self.notes]).strip("\n")
+
+    def __str__(self) -> str:
+        return self.to_string()
+
+    def _repr_html_(self) -> str:
+        """Shown by Jupyter: the table and its notes (escaped)."""
+        import html
+
+        body = self.frame.to_html(index=False, escape=True, border=0)
+        notes = "".join(f"<p><em>{html.escape(n)}</em></p>" for n in self.notes)
+        return body + notes
+
 
 #: Text columns shown as notes under a table (their distinct values), not as columns.
 NOTE_COLUMNS = ("caution", "warning", "statements")

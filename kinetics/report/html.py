@@ -33,6 +33,10 @@ def _slug(key: str) -> str:
     return "sec-" + re.sub(r"[^a-z0-9-]+", "-", key.lower()).strip("-")
 
 
+def _cell_class(text: str, align: str) -> str:
+    return align + (" short" if align == "left" and len(text) <= 24 else "")
+
+
 def _figure(block: FigureBlock, number: int, folder: Path | None) -> dict:
     data, mime = "", _MIME.get(Path(block.filename).suffix.lower(), "image/png")
     if folder is not None:
@@ -56,7 +60,8 @@ def _blocks(section, counters, folder) -> list[dict]:
             out.append({"type": "table", "number": counters["table"], "title": b.title,
                         "source": b.source, "headers": [str(c) for c in frame.columns],
                         "align": list(b.table.align),
-                        "rows": [[str(v) for v in row]
+                        "rows": [[(str(v), _cell_class(str(v), a))
+                                  for v, a in zip(row, b.table.align, strict=True)]
                                  for row in frame.itertuples(index=False, name=None)],
                         "notes": list(b.notes)})
         elif isinstance(b, FigureBlock):

@@ -109,6 +109,9 @@ def _common(f):
                      help="Replace an existing output folder written by crystkin.")(f)
     f = click.option("--fast", is_flag=True,
                      help="Least squares only (no posterior sampling): a quick first look.")(f)
+    f = click.option("--skip-rate-model", is_flag=True,
+                     help="Leave out the joint rate model K(T) (its posterior is the slowest "
+                          "step).")(f)
     return f
 
 
@@ -117,7 +120,7 @@ def _common(f):
               show_default=True, help="Output folder (created; must not exist unless --overwrite).")
 @click.option("--quick", is_flag=True, help="A smaller demo study (fewer runs).")
 @_common
-def demo(out, quick, seed, jobs, overwrite, fast):
+def demo(out, quick, seed, jobs, overwrite, fast, skip_rate_model):
     """Generate the built-in INVENTED demo study and analyse it end to end."""
     with _Guard():
         import tempfile
@@ -136,7 +139,7 @@ def demo(out, quick, seed, jobs, overwrite, fast):
             ex = _executor(jobs)
             try:
                 analysis = analyse_study(study, seed=seed, executor=ex, sample=not fast,
-                                         progress=_progress)
+                                         progress=_progress, rate_model=not skip_rate_model)
             finally:
                 if ex is not None:
                     ex.shutdown()
@@ -154,7 +157,7 @@ def demo(out, quick, seed, jobs, overwrite, fast):
 @click.option("--out", type=click.Path(path_type=Path), required=True,
               help="Output folder (created; must not exist unless --overwrite).")
 @_common
-def analyze(study_file, out, seed, jobs, overwrite, fast):
+def analyze(study_file, out, seed, jobs, overwrite, fast, skip_rate_model):
     """Analyse every run of a study file (TOML) and write tables, figures and a report."""
     with _Guard():
         from kinetics.io import read_study
@@ -171,7 +174,8 @@ def analyze(study_file, out, seed, jobs, overwrite, fast):
         ex = _executor(jobs)
         try:
             analysis = analyse_study(study, seed=seed, executor=ex, sample=not fast,
-                                     progress=_progress, cache_dir=cache)
+                                     progress=_progress, cache_dir=cache,
+                                     rate_model=not skip_rate_model)
         finally:
             if ex is not None:
                 ex.shutdown()
@@ -264,6 +268,113 @@ def peek(file, kind, temperature, rate, mass, exotherm):
                    "start (measured from the curve)")
         for w in conv.warnings:
             click.echo(f"warning:     {w}")
+
+
+@main.command()
+@click.argument("results_dir", type=click.Path(path_type=Path, file_okay=False))
+@click.option("--out", type=click.Path(path_type=Path), default=None,
+              help="Folder for the simulation input (default: RESULTS_DIR-simulation).")
+@click.option("--group", default=None, help="Only this formulation (default: every one).")
+@click.option("--t-min", default=None, help='Lowest temperature of the K(T) table, e.g. "40 degC".')
+@click.option("--t-max", default=None, help='Highest temperature of the K(T) table.')
+@click.option("--step", default="1 K", show_default=True, help="Temperature step of the table.")
+@click.option("--overwrite", is_flag=True, help="Replace an existing export folder.")
+def export(results_dir, out, group, t_min, t_max, step, overwrite):
+    """Write the fitted rate model(s) K(T) of an analysis as simulation input (JSON + CSV)."""
+    with _Guard():
+        import numpy as np
+
+        from kinetics.cautions import PROCESS_CAUTION
+        from kinetics.errors import CrystkinInputError
+        from kinetics.export.simulation import read_simulation_model, write_simulation_model
+        from kinetics.io.writers import atomic_output_dir
+        from kinetics.units import parse_quantity
+
+        models = sorted((results_dir / "export").glob("*_rate_model.json"))
+        if not results_dir.is_dir():
+            _fail(f"{results_dir}: results folder not found; give the --out folder of "
+                  "'crystkin analyze' or 'crystkin demo'")
+        if not models:
+            _fail(f"{results_dir}: no fitted rate model (export/*_rate_model.json); run "
+                  "'crystkin analyze' without --skip-rate-model, with tm0 and tg in the study")
+        out = out or results_dir.with_name(results_dir.name + "-simulation")
+        import re
+        m = re.fullmatch(r"\s*([0-9]*\.?[0-9]+)\s*K\s*", step)
+        dT = float(m.group(1)) if m else None
+        if dT is None or not dT > 0:
+            raise CrystkinInputError(f"--step must be a positive number of kelvin, e.g. '1 K'; "
+                                     f"got {step!r}")
+        with atomic_output_dir(out, overwrite=overwrite, protect=[results_dir]) as tmp:
+            for path in models:
+                model = read_simulation_model(path)
+                name = path.name[: -len("_rate_model.json")]
+                if group is not None and name != group:
+                    continue
+                lo = (parse_quantity(t_min, dimension="temperature") if t_min
+                      else model.glass_transition_K)
+                hi = (parse_quantity(t_max, dimension="temperature") if t_max
+                      else float(model.parameters["Tm0"]["median"]) - 1.0)
+                if not hi > lo:
+                    raise CrystkinInputError(f"--t-max must be above --t-min ({lo:.2f} K, "
+                                             f"{hi:.2f} K)")
+                grid = np.arange(lo, hi + 0.5 * dT, dT)
+                write_simulation_model(model, tmp / f"{name}_rate_model.json",
+                                       tmp / f"{name}_K_of_T.csv", temperature_grid=grid)
+                click.echo(f"{name}: rate model and K(T) table on {len(grid)} temperatures")
+                click.echo(model.summary().to_string(index=False,
+                                                     float_format="{:.5g}".format))
+        click.echo(f"\nSimulation input written to {out}.\n{PROCESS_CAUTION}")
+
+
+@main.command()
+@click.argument("model_file", type=click.Path(path_type=Path, dir_okay=False))
+@click.argument("profile_file", type=click.Path(path_type=Path, dir_okay=False), required=False)
+@click.option("--start", default=None, help='Constant-rate profile instead of a file: start '
+              'temperature, e.g. "230 degC".')
+@click.option("--end", default=None, help='End temperature of the constant-rate profile.')
+@click.option("--rate", default=None, help='Cooling rate of the constant-rate profile, '
+              'e.g. "20 K/min".')
+@click.option("--out", type=click.Path(path_type=Path), default=None,
+              help="Also write the prediction tables and a figure into this folder.")
+@click.option("--overwrite", is_flag=True, help="Replace an existing --out folder.")
+def predict(model_file, profile_file, start, end, rate, out, overwrite):
+    """Apply a rate model to a temperature-time profile: X(t) and times to 50/90/99 %."""
+    with _Guard():
+        from kinetics.analyses.predict import predict_from_profile
+        from kinetics.export.simulation import read_simulation_model
+        from kinetics.io.profile import constant_rate_profile, read_profile
+
+        if not model_file.exists():
+            _fail(f"{model_file}: model file not found; check the path")
+        model = read_simulation_model(model_file)
+        if profile_file is not None:
+            if any((start, end, rate)):
+                _fail("give either PROFILE_FILE or --start/--end/--rate, not both")
+            if not profile_file.exists():
+                _fail(f"{profile_file}: profile file not found; check the path")
+            profile = read_profile(profile_file)
+        elif start and end and rate:
+            profile = constant_rate_profile(start=start, end=end, rate=rate)
+        else:
+            _fail("give a PROFILE_FILE (time and temperature columns) or all of "
+                  "--start, --end and --rate")
+        import warnings
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore")
+            pred = predict_from_profile(model, profile)
+        click.echo(pred.text())
+        if out is not None:
+            from kinetics.io.writers import atomic_output_dir, write_table
+            from kinetics.report.figures_growth import prediction_figure
+            from kinetics.report.style import save
+            with atomic_output_dir(out, overwrite=overwrite,
+                                   protect=[model_file] + ([profile_file] if profile_file else [])
+                                   ) as tmp:
+                write_table(pred.table(), tmp / "prediction_targets")
+                write_table(pred.curve(), tmp / "prediction_curve", formats=("csv",))
+                save(prediction_figure(pred), tmp / "prediction.png")
+                (tmp / "CAUTION.txt").write_text(pred.caution + "\n", encoding="utf-8")
+            click.echo(f"Prediction written to {out}.")
 
 
 if __name__ == "__main__":

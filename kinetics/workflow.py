@@ -15,6 +15,7 @@ import pandas as pd
 
 from . import __version__
 from .analyses.isothermal import BatchResult, analyse_isotherms
+from .cautions import PROCESS_CAUTION
 from .dataset import Study
 from .export.results import posterior_table, preparation_table, write_draws, write_tables
 from .io.writers import atomic_output_dir, write_json
@@ -22,10 +23,6 @@ from .io.writers import atomic_output_dir, write_json
 __all__ = ["StudyAnalysis", "analyse_study", "write_study", "run_study", "resume_folder",
            "PROCESS_CAUTION"]
 
-PROCESS_CAUTION = (
-    "Caution: these kinetic parameters and predictions are estimates from laboratory DSC "
-    "data. Validate them on the real process before using them to set mold temperatures or "
-    "cycle times; local codes and qualified engineering practice govern process settings.")
 
 
 @dataclass
@@ -40,6 +37,8 @@ class StudyAnalysis:
     melting: dict = field(default_factory=dict)
     growth: dict = field(default_factory=dict)
     comparison: object | None = None
+    rate_models: dict = field(default_factory=dict)
+    rate_bands: dict = field(default_factory=dict)
     tables: dict[str, pd.DataFrame] = field(default_factory=dict)
     failures: list[tuple[str, str]] = field(default_factory=list)
     notes: list[str] = field(default_factory=list)
@@ -65,7 +64,7 @@ def resume_folder(out) -> Path:
 
 def analyse_study(study: Study, *, seed: int = 0, executor=None, sample: bool = True,
                   progress=None, fit_options: dict | None = None,
-                  cache_dir=None) -> StudyAnalysis:
+                  cache_dir=None, rate_model: bool = True) -> StudyAnalysis:
     """Run every analysis the study's runs allow.
 
     Parameters
@@ -82,6 +81,9 @@ def analyse_study(study: Study, *, seed: int = 0, executor=None, sample: bool = 
     cache_dir : path, optional
         Keep finished per-run fits there, so an interrupted analysis resumes
         (see :func:`resume_folder`).
+    rate_model : bool
+        Fit the joint Nakamura–Hoffman–Lauritzen K(T) per formulation (also
+        switched off by ``rate_model = false`` in the study's [analysis] table).
     """
     t_start = time.perf_counter()
     options = {"sample": sample, **(fit_options or {})}
@@ -119,6 +121,10 @@ def analyse_study(study: Study, *, seed: int = 0, executor=None, sample: bool = 
         _growth(res, opts)
         _secondary(res, executor)
         _crystallinity(res)
+    if rate_model and opts.get("rate_model", True):
+        if progress:
+            progress("one rate model K(T) per formulation (Nakamura-Hoffman-Lauritzen)")
+        _global(res, opts, executor, sample)
     if len(study.groups) > 1:
         _compare(res, opts)
     convs = [f.conversion for f in (res.isothermal.fits if res.isothermal else ())]
@@ -319,6 +325,73 @@ def _crystallinity(res: StudyAnalysis) -> None:
         res.tables["crystallinity"] = t
 
 
+def _global_job(group, iso, cool, Tm0, T_inf, Tg, seed, study_name, sample):
+    """One formulation's joint rate model (module level: runs in worker processes).
+
+    Returns only picklable pieces: tables, the exported model and the run bands.
+    """
+    from .analyses.global_rate import fit_global_rate
+    from .errors import CrystkinInputError
+
+    try:
+        r = fit_global_rate(iso, cool, Tm0=Tm0, T_inf=T_inf, Tg=Tg, seed=seed, sample=sample,
+                            max_points_per_run=150)
+    except CrystkinInputError as exc:
+        return group, None, f"rate model K(T) ({group}) not possible: {exc}"
+    out = {"table": r.table(), "summary": r.summary(), "checks": r.checks,
+           "statements": tuple(r.statements), "bands": r.bands,
+           "model": r.simulation_model(study_name=study_name)}
+    return group, out, None
+
+
+def _global(res: StudyAnalysis, opts: dict, executor, sample: bool) -> None:
+    tg = res.study.settings.get("tg")
+    iso = {}
+    if res.isothermal:
+        for f in res.isothermal.fits:
+            iso.setdefault(f.trace.info.group, []).append((f.trace, f.conversion))
+    cool = {}
+    if res.cooling is not None:
+        by_id = {t.run_id: t for t in res.study.traces}
+        for c in res.cooling.conversions:
+            if res.cooling.used.get(c.run_id, True) and c.run_id in by_id:
+                cool.setdefault(res.cooling.groups[c.run_id], []).append((by_id[c.run_id], c))
+    jobs = []
+    for group in res.study.groups:
+        if group not in iso and group not in cool:
+            continue
+        tm = _equilibrium_melting(res, group, opts)
+        if tm is None or tg is None:
+            res.notes.append(f"rate model K(T) ({group}) not possible: give tm0 and tg in the "
+                             "[study] table of the study file")
+            continue
+        jobs.append((group, iso.get(group, []), cool.get(group, []), tm[0], float(tg) - 30.0,
+                     float(tg), _seed(res.seed, f"global:{group}"), res.study.name, sample))
+    if not jobs:
+        return
+    if executor is None:
+        outcomes = [_global_job(*j) for j in jobs]
+    else:
+        outcomes = [f.result() for f in [executor.submit(_global_job, *j) for j in jobs]]
+    tables, summaries, checks = [], [], []
+    for group, out, note in outcomes:
+        if out is None:
+            res.notes.append(note)
+            continue
+        res.rate_models[group] = out["model"]
+        res.rate_bands[group] = out["bands"]
+        for df, bucket in ((out["table"], tables), (out["summary"], summaries),
+                           (out["checks"], checks)):
+            df = df.copy()
+            df.insert(0, "group", group)
+            bucket.append(df)
+        res.notes.extend(f"rate model ({group}): {t}" for t in out["statements"])
+    for name, parts in (("global_rate", tables), ("global_parameters", summaries),
+                        ("global_checks", checks)):
+        if parts:
+            res.tables[name] = pd.concat(parts, ignore_index=True)
+
+
 def _compare(res: StudyAnalysis, opts: dict) -> None:
     from .analyses.compare import compare_formulations
 
@@ -329,8 +402,18 @@ def _compare(res: StudyAnalysis, opts: dict) -> None:
         by_id = {t.run_id: t for t in res.study.traces}
         peaks = [(by_id[c.run_id], c) for c in res.cooling.conversions if c.run_id in by_id]
     iso = res.isothermal.fits if res.isothermal and res.isothermal.fits else None
+    curves = None
+    if len(res.rate_models) > 1 and reference in res.rate_models:
+        lo = max(m.validity.get("temperature_K", (np.nan, np.nan))[0]
+                 for m in res.rate_models.values())
+        hi = min(m.validity.get("temperature_K", (np.nan, np.nan))[1]
+                 for m in res.rate_models.values())
+        if np.isfinite(lo) and np.isfinite(hi) and hi > lo:
+            grid = np.linspace(lo, hi, 9)
+            curves = {"temperature": grid,
+                      "draws": {g: m.rate_constant(grid) for g, m in res.rate_models.items()}}
     cmp_ = _attempt(res, "formulation comparison", lambda: compare_formulations(
-        isothermal_fits=iso, cooling_peaks=peaks, reference=reference,
+        isothermal_fits=iso, cooling_peaks=peaks, reference=reference, rate_curves=curves,
         run_to_run_cv=opts.get("run_to_run_cv"), seed=_seed(res.seed, "compare")))
     if cmp_ is None:
         return
@@ -416,6 +499,14 @@ def write_study(analysis: StudyAnalysis, out, *, overwrite: bool = False,
         for rel, writer in (extra_files or {}).items():
             writer(tmp / rel)
         write_tables(tmp, analysis.tables)
+        if analysis.rate_models:
+            from .export.simulation import write_simulation_model
+            (tmp / "export").mkdir()
+            for group, model in analysis.rate_models.items():
+                stem = _safe_stem(group)
+                write_simulation_model(model, tmp / "export" / f"{stem}_rate_model.json",
+                                       tmp / "export" / f"{stem}_K_of_T.csv",
+                                       study_name=analysis.study.name)
         if analysis.isothermal and analysis.isothermal.fits:
             write_draws(tmp, "isothermal", {f.run_id: f.derived for f in analysis.isothermal.fits})
         analysis.figures = _write_figures(analysis, tmp)

@@ -69,7 +69,7 @@ def test_killed_batch_restarts_with_same_tables(tmp_path):
     text = study.read_text().split("[[run]]")
     study.write_text("[[run]]".join(text[:4]))
     ref = tmp_path / "ref"
-    cmd = [*_cli(), "analyze", str(study), "--seed", "2"]
+    cmd = [*_cli(), "analyze", str(study), "--seed", "2", "--skip-rate-model"]
     subprocess.run([*cmd, "--out", str(ref)], check=True, capture_output=True, timeout=600)
 
     out = tmp_path / "out"

@@ -81,7 +81,8 @@ def test_same_seed_gives_byte_identical_tables(tmp_path, demo_study):
     outs = []
     for i in range(2):
         out = tmp_path / f"r{i}"
-        r = runner.invoke(main, ["analyze", str(study), "--out", str(out), "--seed", "7"])
+        r = runner.invoke(main, ["analyze", str(study), "--out", str(out), "--seed", "7",
+                                 "--skip-rate-model"])
         assert r.exit_code == 0, r.output
         outs.append((out / "tables" / "isothermal_runs.csv").read_bytes())
     assert outs[0] == outs[1]
@@ -152,3 +153,36 @@ def test_run_with_no_event_fails_cleanly(tmp_path):
     r = CliRunner().invoke(main, ["peek", str(f)])
     assert r.exit_code == 2
     assert "flat.csv" in r.stderr and "event" in r.stderr.lower()
+
+
+def test_export_and_predict_from_an_analysis(tmp_path, demo_study):
+    """analyze (least squares) -> export -> predict, each printing the process caution."""
+    from kinetics.cautions import PROCESS_CAUTION
+
+    runner = CliRunner()
+    res = tmp_path / "res"
+    r = runner.invoke(main, ["analyze", str(demo_study), "--out", str(res), "--fast"])
+    assert r.exit_code == 0, r.output
+    models = sorted((res / "export").glob("*_rate_model.json"))
+    assert len(models) == 3
+    sim = tmp_path / "sim"
+    r = runner.invoke(main, ["export", str(res), "--out", str(sim), "--group", "PX-40",
+                             "--t-min", "60 degC", "--t-max", "170 degC", "--step", "2 K"])
+    assert r.exit_code == 0, r.output
+    assert PROCESS_CAUTION in r.output
+    table = pd.read_csv(sim / "PX-40_K_of_T.csv", comment="#")
+    assert len(table) == 56 and {"T_K", "K_per_s", "K_per_s_lo95", "K_per_s_hi95"} <= set(table)
+    profile = tmp_path / "mold.csv"
+    t = np.linspace(0, 60, 301)
+    T = 40 + 190 * np.exp(-t / 12.0)
+    profile.write_text("time [s],temperature [degC]\n" + "".join(
+        f"{a:.3f},{b:.4f}\n" for a, b in zip(t, T, strict=True)))
+    r = runner.invoke(main, ["predict", str(sim / "PX-40_rate_model.json"), str(profile),
+                             "--out", str(tmp_path / "pred")])
+    assert r.exit_code == 0, r.output
+    assert "90 %" in r.output and PROCESS_CAUTION in r.output
+    targets = pd.read_csv(tmp_path / "pred" / "prediction_targets.csv")
+    assert len(targets) == 3
+    bad = runner.invoke(main, ["predict", str(profile), "--rate", "10 K/min", "--start",
+                               "200 degC", "--end", "50 degC"])
+    assert bad.exit_code == 2 and "Traceback" not in bad.output

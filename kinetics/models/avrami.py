@@ -63,7 +63,8 @@ def avrami_conversion(t, n, k, t0=0.0):
     -----
     X = 1 - exp(-k (t - t0)^n)  (Avrami, J. Chem. Phys. 1939).
     """
-    return -np.expm1(-k * _elapsed(t, t0) ** n)
+    with np.errstate(over="ignore", invalid="ignore"):
+        return -np.expm1(-k * _elapsed(t, t0) ** n)
 
 
 def avrami_rate(t, n, k, t0=0.0):
@@ -115,7 +116,8 @@ def avrami_half_time(n, k):
 
 def avrami_k_from_half_time(n, t_half):
     """Rate constant from exponent and half-time: k = ln 2 / t_half^n (time^-n)."""
-    return LN2 / np.asarray(t_half, dtype=float) ** np.asarray(n, dtype=float)
+    with np.errstate(over="ignore", divide="ignore"):
+        return LN2 / np.asarray(t_half, dtype=float) ** np.asarray(n, dtype=float)
 
 
 def avrami_peak_time(n, k, t0=0.0):

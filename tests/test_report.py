@@ -25,6 +25,7 @@ from pathlib import Path
 
 import numpy as np
 import pandas as pd
+import pytest
 
 from kinetics.errors import DataQualityWarning
 from kinetics.report.document import (
@@ -90,6 +91,7 @@ class _Rich:
     html: Path
     md: Path
     extra_figures: list = field(default_factory=list)
+    rate_model: object = None
 
 
 @functools.cache
@@ -168,7 +170,7 @@ def rich_report() -> _Rich:
                                     name, caption))
     analysis.figures = list(analysis.figures) + extra
     html, md = write_reports(analysis, out, provenance=provenance)
-    return _Rich(analysis, out, provenance, html, md, [n for n, _, _ in items])
+    return _Rich(analysis, out, provenance, html, md, [n for n, _, _ in items], glob)
 
 
 @functools.cache
@@ -564,6 +566,74 @@ def test_html_report_is_self_contained():
     assert [h.strip() for h in p.h2] == [SECTION_TITLES[k] for k in
                                          build_document(rich.analysis,
                                                         provenance=rich.provenance).keys]
+
+
+# --------------------------------------------------------------------------- figures
+
+def test_rate_model_figures_from_the_workflow_pieces():
+    """The workflow keeps the exported model and the run bands, not the fit itself."""
+    from matplotlib.figure import Figure
+
+    from kinetics.report.figures_growth import global_fit_figure, rate_model_figures
+
+    fit = rich_report().rate_model
+    items = rate_model_figures(fit.simulation_model(), bands=fit.bands, checks=fit.checks,
+                               name="rate_model_PX-40")
+    assert [n for n, _, _ in items] == ["rate_model_PX-40_half_time.png",
+                                        "rate_model_PX-40_check.png"]
+    fig = global_fit_figure(fit.bands, checks=fit.checks)
+    assert isinstance(fig, Figure) and len(fig.axes) == 2
+    labels = [t.get_text() for ax in fig.axes for t in ax.get_legend().get_texts()]
+    assert sum("held out" in t for t in labels) == 1
+    same = [t.get_text() for ax in global_fit_figure(fit).axes
+            for t in ax.get_legend().get_texts()]
+    assert sum("held out" in t for t in same) == 1
+
+
+def test_series_differ_in_marker_and_line_style_for_grey_scale():
+    from kinetics.report.figures_cooling import cooling_conversion_figure
+    from kinetics.report.style import COLOURS
+
+    convs = rich_report().analysis.cooling.conversions
+    ax = cooling_conversion_figure(convs).axes[0]
+    curves = [ln for ln in ax.get_lines() if ln.get_linestyle() not in ("None", "")]
+    points = [ln for ln in ax.get_lines() if ln.get_marker() not in ("None", "", None)]
+    assert len(curves) == len(points) == len(convs)
+    assert len({str(ln.get_linestyle()) for ln in curves}) >= min(4, len(convs))
+    assert len({ln.get_marker() for ln in points}) == len(convs)
+    assert {ln.get_color() for ln in curves} <= set(COLOURS)
+
+
+def test_figures_refuse_results_without_data():
+    from kinetics.analyses.nonisothermal import MoResult, MoRow, OzawaResult, OzawaRow
+    from kinetics.errors import CrystkinInputError
+    from kinetics.report.figures_cooling import (
+        energy_conversion_figure,
+        mo_figure,
+        ozawa_figure,
+    )
+
+    with pytest.raises(CrystkinInputError, match="no estimable temperature"):
+        ozawa_figure(OzawaResult((OzawaRow(400.0, False, "not estimable", (5.0,), (0.5,)),)))
+    with pytest.raises(CrystkinInputError, match="no estimable conversion"):
+        mo_figure(MoResult((MoRow(0.5, False, "not estimable", (5.0,), (1.0,), 400.0),)))
+    with pytest.raises(CrystkinInputError, match="isoconversional"):
+        energy_conversion_figure()
+
+
+def test_gibbs_thomson_figure_extrapolates_to_zero_inverse_thickness():
+    from kinetics.analyses.melting import gibbs_thomson
+    from kinetics.report.figures_growth import gibbs_thomson_figure
+
+    # invented points on Tm = Tm0 (1 - 2 sigma_e / (dh l)), Tm0 = 460 K, sigma_e = 0.06 J/m^2
+    thick = np.array([8e-9, 10e-9, 12e-9, 15e-9, 20e-9])
+    dh = 1.4e8
+    Tm = 460.0 * (1 - 2 * 0.06 / (dh * thick)) + np.array([0.2, -0.1, 0.1, -0.2, 0.05])
+    fit = gibbs_thomson(thick, Tm, delta_hf=dh, T_m_sd=0.3, seed=1)
+    ax = gibbs_thomson_figure(fit).axes[0]
+    assert ax.get_xlim()[0] == 0.0
+    labels = [t.get_text() for t in ax.get_legend().get_texts()]
+    assert any(lab.startswith("Tm⁰ = 18") for lab in labels)  # 460 K = 186.85 °C
 
 
 # --------------------------------------------------------------------------- reduced studies

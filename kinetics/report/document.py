@@ -475,12 +475,26 @@ def _priors_blocks(provenance: dict) -> list:
             blocks.append(TableBlock(
                 "Priors that depend on the run (ranges set from each run's data)",
                 format_table(df, drop_empty=False)))
-    for key, val in provenance.items():
-        if key == "runs" or not isinstance(val, dict) or not isinstance(val.get("priors"), dict):
-            continue
+    for label, val in _provenance_entries(provenance, "priors"):
         blocks.append(BulletList(tuple(f"{p}: {d}" for p, d in val["priors"].items()),
-                                 title=f"Priors of {key.replace('_', ' ')}:"))
+                                 title=f"Priors of {label}:"))
     return blocks
+
+
+def _provenance_entries(provenance: dict, key: str):
+    """(label, entry) of provenance entries other than the runs that hold ``key``,
+    also one level down (for example one entry per formulation)."""
+    out = []
+    for name, val in provenance.items():
+        if name in ("runs", "software") or not isinstance(val, dict):
+            continue
+        if isinstance(val.get(key), dict):
+            out.append((name.replace("_", " "), val))
+            continue
+        for sub, inner in val.items():
+            if isinstance(inner, dict) and isinstance(inner.get(key), dict):
+                out.append((f"{name.replace('_', ' ')} ({sub})", inner))
+    return out
 
 
 _DIAG_COLUMNS = ("converged", "n_steps", "n_walkers", "n_draws", "tau_max", "ess", "acceptance",
@@ -492,8 +506,8 @@ def _diagnostics_blocks(analysis, provenance: dict) -> list:
     rows, reasons = [], []
     sources = [(rid, r.get("diagnostics")) for rid, r in (provenance.get("runs") or {}).items()
                if isinstance(r, dict)]
-    sources += [(key.replace("_", " "), val.get("diagnostics")) for key, val in provenance.items()
-                if key != "runs" and isinstance(val, dict)]
+    sources += [(label, val["diagnostics"])
+                for label, val in _provenance_entries(provenance, "diagnostics")]
     for name, d in sources:
         if not isinstance(d, dict):
             continue

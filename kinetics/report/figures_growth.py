@@ -235,13 +235,52 @@ def half_time_law_figure(result, *, isothermal_table=None, title="Rate model: ha
     return fig
 
 
-def global_fit_figure(result, *, max_runs: int = 8, title="Rate model against the runs"):
+def _run_rows(result, bands, checks):
+    """(run_id, kind, label, held_out, time origin) of every run with a band."""
+    rows = []
+    specs = list(getattr(result, "specs", ())) + list(getattr(result, "held_out", ()))
+    if specs:
+        held = {s.run_id for s in getattr(result, "held_out", ())}
+        for s in specs:
+            if s.run_id not in bands:
+                continue
+            label = (f"{s.run_id} ({celsius(s.temperature):.0f} °C)" if s.kind == "isothermal"
+                     else f"{s.run_id} ({60 * s.rate:.3g} K/min)")
+            origin = s.conversion.hold_start if s.kind == "isothermal" else 0.0
+            rows.append((s.run_id, s.kind, label, s.run_id in held, origin))
+        return rows
+    info = {}
+    if checks is not None and len(checks):
+        for r in checks.to_dict("records"):
+            info[str(r["run_id"])] = r
+    for run_id, band in bands.items():
+        c = band["conversion"]
+        r = info.get(str(run_id), {})
+        T = c["T_K"].to_numpy(dtype=float)
+        kind = r.get("kind") or ("isothermal" if np.ptp(T) < 2.0 else "cooling")
+        if kind == "isothermal":
+            label = f"{run_id} ({celsius(float(np.median(T))):.0f} °C)"
+        else:
+            rate = r.get("rate_K_per_min")
+            label = f"{run_id} ({rate:.3g} K/min)" if rate else str(run_id)
+        rows.append((run_id, kind, label, bool(r.get("held_out", False)),
+                     float(c["t_s"].iloc[0]) if kind == "isothermal" else 0.0))
+    return rows
+
+
+def global_fit_figure(result, *, checks=None, max_runs: int = 8,
+                      title="Rate model against the runs"):
     """Measured relative crystallinity of each run against the rate model's 95 % band.
 
     Parameters
     ----------
-    result : GlobalRateResult
-        From :func:`kinetics.analyses.global_rate.fit_global_rate`.
+    result : GlobalRateResult, or dict of run_id -> band tables
+        From :func:`kinetics.analyses.global_rate.fit_global_rate` (its ``bands``,
+        ``specs`` and ``held_out`` are used), or its ``bands`` alone.
+    checks : DataFrame, optional
+        With a bands dict: the result's ``checks`` table (run kind, hold
+        temperature, rate, held-out flag) for the legend; without it the kind is
+        read from the temperature record.
 
     Returns
     -------
@@ -249,11 +288,10 @@ def global_fit_figure(result, *, max_runs: int = 8, title="Rate model against th
         Left: isothermal runs against time; right: cooling runs against
         temperature (reversed). Held-out runs are marked in the legend.
     """
-    bands = getattr(result, "bands", None) or {}
-    specs = list(getattr(result, "specs", ())) + list(getattr(result, "held_out", ()))
-    held = {s.run_id for s in getattr(result, "held_out", ())}
-    iso = [s for s in specs if s.kind == "isothermal" and s.run_id in bands][:max_runs]
-    cool = [s for s in specs if s.kind == "cooling" and s.run_id in bands][:max_runs]
+    bands = result if isinstance(result, dict) else (getattr(result, "bands", None) or {})
+    rows = _run_rows(None if isinstance(result, dict) else result, bands, checks)
+    iso = [r for r in rows if r[1] == "isothermal"][:max_runs]
+    cool = [r for r in rows if r[1] == "cooling"][:max_runs]
     if not (iso or cool):
         raise CrystkinInputError("global_fit_figure: the result has no run bands to draw")
     ncols = int(bool(iso)) + int(bool(cool))
@@ -264,25 +302,22 @@ def global_fit_figure(result, *, max_runs: int = 8, title="Rate model against th
             continue
         ax = axes[0, k]
         k += 1
-        for s, (col, mk, ls) in zip(runs, cycle(), strict=False):
-            c = bands[s.run_id]["conversion"]
+        for (run_id, _kind, label, held, origin), (col, mk, ls) in zip(runs, cycle(),
+                                                                        strict=False):
+            c = bands[run_id]["conversion"]
             if kind == "isothermal":
-                xv = (c["t_s"].to_numpy(dtype=float) - s.conversion.hold_start) / 60.0
-                lab = f"{s.run_id} ({celsius(s.temperature):.0f} °C)"
+                xv = (c["t_s"].to_numpy(dtype=float) - origin) / 60.0
             else:
                 xv = celsius(c["T_K"].to_numpy(dtype=float))
-                lab = f"{s.run_id} ({60 * s.rate:.3g} K/min)"
-            if s.run_id in held:
-                lab += ", held out"
             step = max(1, len(xv) // 30)
             ax.plot(xv[::step], c["X_measured"].to_numpy()[::step], mk, color=col, ms=3,
-                    mfc="none", label=lab)
+                    mfc="none", label=label + (", held out" if held else ""))
             ax.plot(xv, c["X_median"], color=col, ls=ls, lw=1.1)
             ax.fill_between(xv, c["X_lo95"], c["X_hi95"], color=col, alpha=BAND_ALPHA, lw=0)
         ax.set_ylim(-0.02, 1.02)
         ax.set_ylabel("relative crystallinity X")
         if kind == "isothermal":
-            ax.set_xlabel("time since hold start / min")
+            ax.set_xlabel("time / min")
             ax.set_title("isothermal holds")
         else:
             ax.invert_xaxis()
@@ -390,18 +425,23 @@ def growth_figures(growth=None, melting=None, *, energy=None) -> list:
     return out
 
 
-def rate_model_figures(result=None, predictions=(), *, isothermal_table=None,
-                       name="rate_model") -> list:
+def rate_model_figures(result=None, predictions=(), *, bands=None, checks=None,
+                       isothermal_table=None, name="rate_model") -> list:
     """Figures of a global rate model and of predictions made with it.
 
     Parameters
     ----------
     result : GlobalRateResult or SimulationModel, optional
     predictions : sequence of Prediction
+    bands : dict of run_id -> band tables, optional
+        The fit's ``bands`` when ``result`` is a SimulationModel (the check figure
+        is drawn only with bands).
+    checks : DataFrame, optional
+        The fit's ``checks`` table, for the legend of the check figure.
     isothermal_table : DataFrame, optional
-        Per-run isothermal half-times shown on the half-time law.
+        Per-run isothermal half-times of the same formulation, shown on the half-time law.
     name : str
-        File-name stem (one model per call; use the group name for several).
+        File-name stem (one model per call; include the group name for several).
 
     Returns
     -------
@@ -415,10 +455,11 @@ def rate_model_figures(result=None, predictions=(), *, isothermal_table=None,
                     "Isothermal half-time of the fitted Nakamura-Hoffman-Lauritzen rate model "
                     "(median, 95 % band); the grey span is the temperature range of the "
                     "fitted data, outside it the curve is an extrapolation."))
-        if getattr(result, "bands", None):
-            out.append((f"{stem}_check.png", global_fit_figure(result),
-                        "Measured relative crystallinity of each run (points) against the "
-                        "rate model's median and 95 % band; held-out runs were not fitted."))
+    if getattr(result, "bands", None) or bands:
+        source = result if getattr(result, "bands", None) else bands
+        out.append((f"{stem}_check.png", global_fit_figure(source, checks=checks),
+                    "Measured relative crystallinity of each run (points) against the "
+                    "rate model's median and 95 % band; held-out runs were not fitted."))
     for k, p in enumerate(predictions, start=1):
         out.append((f"{stem}_prediction_{k}.png", prediction_figure(p),
                     f"Predicted relative crystallinity on {p.source or 'the profile'} (median, "

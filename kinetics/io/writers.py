@@ -2,6 +2,7 @@
 
 * :func:`atomic_output_dir`: build a result folder under a hidden temporary name next
   to its destination and move it into place only when everything succeeded.
+* :func:`check_output_destination`: the same refusals, up front, before long work.
 * :func:`safe_child`: the path of one output file inside a result folder, refusing
   names that could escape it.
 * :func:`write_json`, :func:`write_table`: byte-stable JSON, CSV and Markdown.
@@ -28,8 +29,9 @@ import numpy as np
 
 from ..errors import CrystkinInputError
 
-__all__ = ["atomic_output_dir", "safe_child", "write_json", "json_text", "write_table",
-           "markdown_table", "check_safe_name", "SAFE_NAME", "MARKER_NAME"]
+__all__ = ["atomic_output_dir", "check_output_destination", "safe_child", "write_json",
+           "json_text", "write_table", "markdown_table", "check_safe_name", "SAFE_NAME",
+           "MARKER_NAME"]
 
 MARKER_NAME = ".crystkin-output"
 SAFE_NAME = re.compile(r"[A-Za-z0-9_][A-Za-z0-9._-]{0,127}")
@@ -79,6 +81,7 @@ def atomic_output_dir(out, *, overwrite: bool = False, protect: Iterable = ()) -
         Destination folder. Its parent is created if needed.
     overwrite : bool
         Replace an existing ``out`` (only a folder written by crystkin, or an empty one).
+        An existing empty folder is used also without it.
         The old folder is removed only after the new one is in place.
     protect : iterable of path
         Input files and folders. ``out`` may not be one of them or contain one.
@@ -117,6 +120,27 @@ def atomic_output_dir(out, *, overwrite: bool = False, protect: Iterable = ()) -
         raise
 
 
+def check_output_destination(out, *, overwrite: bool = False, protect: Iterable = ()) -> Path:
+    """Refuse now a destination that :func:`atomic_output_dir` would refuse at the end.
+
+    Call it before long work (fitting), with the same arguments, so a refused ``--out``
+    costs nothing and leaves nothing behind.
+
+    Returns
+    -------
+    Path
+        ``out``.
+
+    Raises
+    ------
+    CrystkinInputError
+        As :func:`atomic_output_dir`.
+    """
+    out = Path(out).expanduser()
+    _check_destination(Path(os.path.abspath(out)), out, overwrite, protect)
+    return out
+
+
 def _make_hidden_dir(parent: Path, name: str, tag: str) -> Path:
     for _ in range(100):
         candidate = parent / f".{name}.{tag}-{secrets.token_hex(4)}"
@@ -142,13 +166,18 @@ def _check_destination(target: Path, out: Path, overwrite: bool, protect) -> Non
                 "overwritten: choose another with --out")
     if not os.path.lexists(target):
         return
-    if not target.is_dir() or target.is_symlink():
+    if target.is_symlink():
+        raise CrystkinInputError(
+            f"{out} is a symbolic link; outputs are not written through links: give the real "
+            "folder (or a new one) with --out")
+    if not target.is_dir():
         raise CrystkinInputError(
             f"{out} exists and is not a folder; choose another with --out")
-    if not overwrite:
+    cwd = Path(os.path.realpath(Path.cwd()))
+    empty = not any(real.iterdir())
+    if not overwrite and not empty:
         raise CrystkinInputError(
             f"output folder {out} exists; choose another with --out or pass --overwrite")
-    cwd = Path(os.path.realpath(Path.cwd()))
     if real == cwd or real in cwd.parents:
         raise CrystkinInputError(
             f"output folder {out} is or contains the current folder; choose another with --out")

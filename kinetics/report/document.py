@@ -459,14 +459,17 @@ def _priors_blocks(provenance: dict) -> list:
                if isinstance(r, dict) and isinstance(r.get("priors"), dict)}
     if per_run:
         params = list(dict.fromkeys(p for pri in per_run.values() for p in pri))
-        common, varying = [], []
+        common, varying = {}, []
         for p in params:
-            vals = {str(pri.get(p)) for pri in per_run.values() if p in pri}
-            present = all(p in pri for pri in per_run.values())
-            (common if (len(vals) == 1 and present) else varying).append(p)
+            vals = {str(pri[p]) for pri in per_run.values() if p in pri}
+            if len(vals) == 1:
+                where = "" if all(p in pri for pri in per_run.values()) else \
+                    " (in the runs where this term is fitted)"
+                common[p] = vals.pop() + where
+            else:
+                varying.append(p)
         if common:
-            first = next(iter(per_run.values()))
-            blocks.append(BulletList(tuple(f"{p}: {first[p]}" for p in common),
+            blocks.append(BulletList(tuple(f"{p}: {d}" for p, d in common.items()),
                                      title="Priors common to every run:"))
         if varying:
             rows = [{"run_id": rid, **{p: pri.get(p, "") for p in varying}}

@@ -296,7 +296,7 @@ NOTE_COLUMNS = ("caution", "warning", "statements")
 
 def format_table(df: pd.DataFrame, *, columns=None, drop_kelvin_twins: bool = True,
                  drop_empty: bool = True, note_length: int = 60,
-                 note_columns=NOTE_COLUMNS, max_cell: int = 90) -> FormattedTable:
+                 note_columns=NOTE_COLUMNS, max_cell: int = 80) -> FormattedTable:
     """A tidy result table formatted for reading (nothing is recomputed).
 
     Parameters

@@ -34,7 +34,9 @@ def _slug(key: str) -> str:
 
 
 def _cell_class(text: str, align: str) -> str:
-    return align + (" short" if align == "left" and len(text) <= 24 else "")
+    if align != "left":
+        return align
+    return align + (" short" if len(text) <= 24 else " long")
 
 
 def _figure(block: FigureBlock, number: int, folder: Path | None) -> dict:

@@ -462,6 +462,27 @@ def _write_figures(analysis: StudyAnalysis, out: Path) -> list[FigureFile]:
             put("diagnostics", figures.posterior_pairs_figure(first),
                 f"posterior_{first.run_id}.png",
                 f"Run {first.run_id}: posterior draws of n, t_half and t0.")
+    from .report.figures_cooling import cooling_figures, figure_stem
+    from .report.figures_growth import growth_figures, rate_model_figures
+
+    if analysis.cooling is not None:
+        for name, fig, cap in _safely(analysis, "cooling figures",
+                                      lambda: cooling_figures(analysis.cooling)):
+            put("cooling", fig, name, cap)
+    if analysis.growth or analysis.melting:
+        for name, fig, cap in _safely(analysis, "growth figures", lambda: growth_figures(
+                analysis.growth, analysis.melting)):
+            put("growth", fig, name, cap)
+    chk = analysis.tables.get("global_checks")
+    iso = analysis.tables.get("isothermal_runs")
+    for g, model in analysis.rate_models.items():
+        for name, fig, cap in _safely(analysis, f"rate-model figures ({g})",
+                                      lambda g=g, model=model: rate_model_figures(
+                model, bands=analysis.rate_bands.get(g),
+                checks=None if chk is None else chk[chk["group"] == g],
+                isothermal_table=None if iso is None else iso[iso["group"] == g],
+                name=f"rate_model_{figure_stem(g)}")):
+            put("global", fig, name, cap)
     if analysis.comparison is not None:
         from .report.compare_figures import comparison_figures
 
@@ -479,6 +500,17 @@ def _write_figures(analysis: StudyAnalysis, out: Path) -> list[FigureFile]:
         for name, fig in comparison_figures(analysis.comparison).items():
             put("compare", fig, f"compare_{name}.png", texts.get(name, name.replace("_", " ")))
     return written
+
+
+def _safely(analysis: StudyAnalysis, what: str, make):
+    """Figures of one analysis; a figure that cannot be drawn becomes a note."""
+    from .errors import CrystkinInputError
+
+    try:
+        return make()
+    except CrystkinInputError as exc:
+        analysis.notes.append(f"{what} not drawn: {exc}")
+        return []
 
 
 def _safe_stem(text: str) -> str:
@@ -510,9 +542,10 @@ def write_study(analysis: StudyAnalysis, out, *, overwrite: bool = False,
         if analysis.isothermal and analysis.isothermal.fits:
             write_draws(tmp, "isothermal", {f.run_id: f.derived for f in analysis.isothermal.fits})
         analysis.figures = _write_figures(analysis, tmp)
-        from .report.markdown import write_markdown_report
-        write_markdown_report(analysis, tmp, [f.filename for f in analysis.figures])
-        write_json(tmp / "provenance.json", _provenance(analysis))
+        from .report.markdown import write_reports
+        prov = _provenance(analysis)
+        write_reports(analysis, tmp, provenance=prov)
+        write_json(tmp / "provenance.json", prov)
     return out
 
 

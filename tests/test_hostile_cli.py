@@ -26,6 +26,8 @@ import numpy as np
 import pytest
 from click.testing import CliRunner
 from crystkin_cli.main import main
+from hypothesis import HealthCheck, given, settings
+from hypothesis import strategies as st
 
 import kinetics.io
 import kinetics.io.study
@@ -446,3 +448,70 @@ def _crystkin():
     if exe.exists() and os.access(exe, os.X_OK):
         return [str(exe)]
     return [sys.executable, "-m", "crystkin_cli.main"]
+
+
+# -- random tables through the whole of `peek` (read, guess the kind, prepare, print) --------
+
+@st.composite
+def _hostile_tables(draw):
+    n = draw(st.integers(10, 400))
+    rng = np.random.default_rng(draw(st.integers(0, 2**32 - 1)))
+    t = np.cumsum(rng.uniform(0.1, 2.0, n)) if draw(st.booleans()) else np.arange(n) * 0.5
+    u = t / t[-1]
+    T = draw(st.sampled_from([
+        np.full(n, 125.0), 180.0 - 100.0 * u, 50.0 + 150.0 * u, 125.0 + rng.normal(0, 3, n),
+        np.where(u < 0.5, 125.0, 160.0), np.full(n, 1e30), np.full(n, -300.0)]))
+    shape = draw(st.sampled_from(["peak", "dip", "noise", "flat", "step", "spike", "two"]))
+    g = np.exp(-0.5 * ((u - draw(st.floats(0.1, 0.9))) / draw(st.floats(0.01, 0.3))) ** 2)
+    q = {"peak": g, "dip": -g, "noise": rng.normal(size=n), "flat": np.zeros(n),
+         "step": (u > 0.5).astype(float), "spike": np.eye(1, n, n // 2)[0],
+         "two": g - np.exp(-0.5 * ((u - 0.8) / 0.05) ** 2)}[shape]
+    q = q * draw(st.sampled_from([1e-30, 1.0, 1e30])) + 1e-3 * rng.normal(size=n)
+    return t, T, q
+
+
+@settings(max_examples=int(os.environ.get("CRYSTKIN_HOSTILE_EXAMPLES", "40")), deadline=None,
+          suppress_health_check=[HealthCheck.function_scoped_fixture, HealthCheck.too_slow])
+@given(data=_hostile_tables(), mass=st.sampled_from([None, "5 mg"]))
+def test_peek_on_hostile_tables(tmp_path, data, mass):
+    t, T, q = data
+    lines = [HEADER, *(f"{float(a) / 60!r},{float(b)!r},{float(c)!r}"
+                       for a, b, c in zip(t, T, q, strict=True))]
+    f = _write(tmp_path / "table.csv", "\n".join(lines) + "\n")
+    r = _invoke(["peek", f] + (["--mass", mass] if mass else []))
+    if r.exit_code != 0:
+        _one_line_error(r, "table.csv")
+    else:
+        assert "kind:" in r.output
+
+
+# -- downstream of a valid preparation: a small but real signal ----------------------------
+
+@pytest.mark.xfail(strict=True, reason=(
+    "kinetics/estimate/least_squares.py (via analyses/isothermal.fit_isotherm): the fit is "
+    "not invariant to the signal's scale; a 0.1 uW peak (chip or nano calorimetry) gives "
+    "n = 5.06 instead of 3.44 and a 1e-10 W peak n = 5.9 with a zero-width interval; "
+    "cause (checked): gtol=1e-12 is absolute in scipy's trf and the residuals are in W; "
+    "with gtol=None both give n = 3.4383; scale the residuals or drop gtol"))
+def test_avrami_fit_does_not_depend_on_the_signal_unit():
+    """The same invented run with its heat flow multiplied by 1e-4 (1 mW -> 0.1 uW peak).
+
+    X(t), n and t_half are ratios of heat-flow integrals, so a change of unit cannot change
+    them (definition of relative crystallinity); only the enthalpy scales."""
+    import warnings
+
+    from kinetics.analyses.isothermal import fit_isotherm
+    from kinetics.dataset import RunInfo, Trace
+
+    t = np.arange(600) * 0.5
+    q = 1e-3 * (np.exp(-0.5 * ((t - 150.0) / 20.0) ** 2)
+                + 1e-3 * np.random.default_rng(0).normal(size=t.size))
+    rows = {}
+    for scale in (1.0, 1e-4):
+        tr = Trace(RunInfo("r", "isothermal", temperature=398.15, mass=5e-6, source="r.csv"),
+                   t, np.full(t.size, 398.15), q * scale)
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore")
+            rows[scale] = fit_isotherm(tr, sample=False).row()
+    assert rows[1e-4]["n"] == pytest.approx(rows[1.0]["n"], rel=1e-3)
+    assert rows[1e-4]["t_half_s"] == pytest.approx(rows[1.0]["t_half_s"], rel=1e-3)

@@ -392,3 +392,112 @@ def test_constant_signal_has_no_event(kind, value):
             with time_guard():
                 fn(_trace(kind, t, T, np.full(n, value)))
     _check_message(err.value)
+
+
+# -- realistic invented runs, then damaged --------------------------------------------------
+
+def _realistic(kind, seed):
+    if kind == "isothermal":
+        from kinetics.synthetic import synthetic_isotherm
+        trace, _ = synthetic_isotherm(n=2.5, t_half=60.0, t0=20.0, temperature=398.15,
+                                      seed=seed, transient=(2e-4, 5.0))
+    else:
+        from kinetics.synthetic_cooling import synthetic_cooling
+        trace, _ = synthetic_cooling(rate=10 / 60, seed=seed, n_points=800,
+                                     baseline_step=2e-5)
+    return trace
+
+
+def _damage(trace, how, rng):
+    t, T, q = trace.time.copy(), trace.temperature.copy(), trace.heat_flow.copy()
+    n = len(t)
+    peak = float(np.max(np.abs(q - np.median(q))))
+    if how == "quantised_heat_flow":
+        step = peak * rng.choice([0.01, 0.1, 0.5])
+        q = np.round(q / step) * step
+    elif how == "quantised_temperature":
+        T = np.round(T / rng.choice([0.1, 1.0])) * rng.choice([0.1, 1.0])
+    elif how == "spikes":
+        idx = rng.choice(n, size=rng.integers(1, 6), replace=False)
+        q[idx] += rng.choice([-100.0, 100.0], size=idx.size) * peak
+    elif how == "repeated_values":
+        q = np.repeat(q[::5], 5)[:n]
+    elif how == "truncated_start":
+        k = rng.integers(n // 4, 3 * n // 4)
+        t, T, q = t[k:], T[k:], q[k:]
+    elif how == "truncated_end":
+        k = rng.integers(n // 4, 3 * n // 4)
+        t, T, q = t[:k], T[:k], q[:k]
+    elif how == "decimated":
+        k = max(1, n // int(rng.integers(10, 31)))
+        t, T, q = t[::k], T[::k], q[::k]
+    elif how == "sign_flip_part_way":
+        k = rng.integers(n // 4, 3 * n // 4)
+        q[k:] = -q[k:]
+    elif how == "step":
+        q[n // 2:] += rng.choice([-1.0, 1.0]) * peak
+    elif how == "reversed_sign":
+        q = -q
+    elif how == "heating_prefix":
+        k = n // 5
+        T[:k] = T[k] - np.linspace(30.0, 0.0, k)
+    return Trace(trace.info, t, T, q, specific=trace.specific)
+
+
+DAMAGE = ["quantised_heat_flow", "quantised_temperature", "spikes", "repeated_values",
+          "truncated_start", "truncated_end", "decimated", "sign_flip_part_way", "step",
+          "reversed_sign", "heating_prefix"]
+
+
+@settings(max_examples=max(EXAMPLES // 2, 1), deadline=None,
+          suppress_health_check=[HealthCheck.too_slow])
+@given(kind=st.sampled_from(["isothermal", "cooling"]), how=st.sampled_from(DAMAGE),
+       seed=st.integers(0, 2**16))
+def test_damaged_realistic_runs(kind, how, seed):
+    trace = _damage(_realistic(kind, seed % 7), how, np.random.default_rng(seed))
+    fn, check = PREPARERS[kind]
+    out = _run(fn, trace, check)
+    if how == "spikes" and out is not None:
+        assert any("spike" in w for w in out.warnings), out.warnings
+
+
+@pytest.mark.parametrize("kind", ["isothermal", "cooling"])
+@pytest.mark.parametrize("scale", [1e-30, 1e-12, 1e-6, 1e12, 1e30])
+@pytest.mark.parametrize("quantised", [False, True])
+def test_preparation_does_not_depend_on_the_signal_unit(kind, scale, quantised):
+    """X is a ratio of integrals of the heat flow, so multiplying the heat flow by any
+    factor (a change of unit) leaves X unchanged and multiplies the enthalpy by that
+    factor (linearity of the integral); no threshold may be absolute. ``quantised``: a
+    noise-free record rounded to 1e-4 of its peak (flat, repeated values at the end)."""
+    trace = _realistic(kind, 3)
+    if quantised:
+        if kind == "isothermal":
+            from kinetics.synthetic import synthetic_isotherm
+            trace, _ = synthetic_isotherm(n=2.5, t_half=60.0, t0=20.0, temperature=398.15,
+                                          seed=1, noise=0.0)
+        step = 1e-4 * float(np.max(np.abs(trace.heat_flow)))
+        trace = Trace(trace.info, trace.time, trace.temperature,
+                      np.round(trace.heat_flow / step) * step)
+    scaled = Trace(trace.info, trace.time, trace.temperature, trace.heat_flow * scale)
+    fn = PREPARERS[kind][0]
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", DataQualityWarning)
+        ref, out = fn(trace), fn(scaled)
+    assert out.window == ref.window
+    np.testing.assert_allclose(out.conversion, ref.conversion, rtol=0, atol=1e-9)
+    assert out.enthalpy / scale == pytest.approx(ref.enthalpy, rel=1e-9)
+
+
+def test_isolated_spike_area_by_hand():
+    """One sample of height 10 on a zero signal sampled every 0.5 s: the trapezoidal rule
+    gives it the area 10 x 0.5 = 5 (each interior sample carries half of both intervals)."""
+    from kinetics.prep.events import isolated_spikes
+
+    t = np.arange(100) * 0.5
+    y = np.zeros(100)
+    y[50] = 10.0
+    idx, area = isolated_spikes(t, y, noise=0.01)
+    assert idx.tolist() == [50]
+    assert area == pytest.approx(5.0)
+    idx, area = isolated_spikes(t, np.exp(-0.5 * ((t - 25.0) / 3.0) ** 2), noise=0.01)
+    assert idx.size == 0 and area == 0.0

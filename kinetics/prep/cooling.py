@@ -52,7 +52,7 @@ import numpy as np
 from ..dataset import Conversion, Trace
 from ..errors import CrystkinInputError, DataQualityWarning, check_option, check_range
 from .baseline import cumulative_trapezoid, linear_baseline, polynomial_baseline, sigmoidal_baseline
-from .events import find_event_window, robust_noise, smooth, smoothing_points
+from .events import find_event_window, isolated_spikes, robust_noise, smooth, smoothing_points
 from .sign import choose_exotherm, orient
 from .thermal_lag import resolve_lag
 
@@ -358,6 +358,14 @@ def prepare_cooling(trace, *, window=None, baseline="sigmoidal", exotherm=None, 
     if snr < min_snr:
         found.append(f"signal-to-noise too low: peak/noise = {snr:.1f} < {min_snr:g}; limits, "
                      "baseline and enthalpy are uncertain")
+    spikes, _ = isolated_spikes(t, y - B, noise=noise)
+    _, spike_area = isolated_spikes(ts, c, noise=noise)
+    if spikes.size:
+        inside = (f"; those inside the event window add {spike_area / area:+.1%} to the area"
+                  if spike_area else "")
+        found.append(f"{spikes.size} isolated spike(s) (single samples far from their "
+                     f"neighbours, first at {t[spikes[0]]:.1f} s) can distort the baseline, "
+                     f"the event limits and the enthalpy{inside}: remove them from the raw file")
     for msg in found:
         _warnings.warn(f"{trace.run_id}: {msg}", DataQualityWarning, stacklevel=2)
 
@@ -390,6 +398,7 @@ def prepare_cooling(trace, *, window=None, baseline="sigmoidal", exotherm=None, 
         "cut_off_end": bool(cut_end), "cut_off_reason": cut_reason,
         "monotone_adjustment": adjustment, "monotone_enforced": adjustment > _MONOTONE_NOTE,
         "area": area, "area_unit": "J/kg" if trace.specific else "J", "enthalpy_unit": unit,
+        "spikes": int(spikes.size), "spike_area": spike_area,
     }
     return Conversion(
         run_id=trace.run_id, kind="cooling", time=ts, temperature=T_s[sl], conversion=X,

@@ -22,13 +22,15 @@ from dataclasses import dataclass, field
 from functools import lru_cache
 
 import numpy as np
+from scipy.ndimage import median_filter
 from scipy.signal import savgol_coeffs
 
 from ..errors import CrystkinInputError, check_range
 
 __all__ = [
     "HoldStart", "TransientEnd", "EventWindow", "IsothermalEvents",
-    "robust_noise", "smoothing_points", "smooth", "noise_factor", "reference_level",
+    "robust_noise", "isolated_spikes", "smoothing_points", "smooth", "noise_factor",
+    "reference_level",
     "find_hold_start", "find_transient_end", "find_event_window", "locate_isothermal_events",
 ]
 
@@ -189,9 +191,50 @@ def robust_noise(y, *, tail_fraction=0.2, min_points=20) -> float:
     sigma = _MAD_TO_SD * np.median(np.abs(d - np.median(d))) / np.sqrt(2.0)
     if not sigma > 0:  # quantised or constant data
         sigma = float(np.std(d)) / np.sqrt(2.0)
+    if not sigma > 0:  # relative floor: the same in any unit
+        sigma = 1e-12 * float(np.max(np.abs(y)))
     if not sigma > 0:
-        sigma = 1e-12 * max(1.0, float(np.max(np.abs(y))))
+        sigma = float(np.finfo(float).tiny)
     return float(sigma)
+
+
+def isolated_spikes(time, signal, *, noise, factor=20.0, min_points=20):
+    """Single samples far from their neighbours (instrument glitches), for a warning.
+
+    Parameters
+    ----------
+    time : array of shape (n,), s
+    signal : array of shape (n,)
+        Baseline-corrected signal over the event window, any unit.
+    noise : float
+        Noise SD of one sample, unit of ``signal``.
+    factor : float
+        A spike departs from the 5-point running median by more than ``factor`` noise
+        SDs and by more than half the range of that median (our choice).
+    min_points : int
+        Shorter windows are not checked (a few-sample event is not resolved).
+
+    Returns
+    -------
+    indices : array of int
+        Indices of the spike samples.
+    area : float
+        What they add to the trapezoidal area of ``signal``, unit of ``signal`` times s.
+    """
+    y = np.asarray(signal, dtype=float)
+    t = np.asarray(time, dtype=float)
+    if y.size < max(int(min_points), 5):
+        return np.zeros(0, dtype=int), 0.0
+    m = median_filter(y, size=5, mode="nearest")
+    d = y - m
+    limit = max(factor * float(noise), 0.5 * float(np.ptp(m)))
+    idx = np.flatnonzero(np.abs(d) > limit)
+    if idx.size == 0:
+        return idx, 0.0
+    w = np.gradient(t) if t.size > 1 else np.ones(1)
+    w[0] *= 0.5
+    w[-1] *= 0.5
+    return idx, float(np.sum(d[idx] * w[idx]))
 
 
 def smoothing_points(n_points: int) -> int:

@@ -23,7 +23,7 @@ import numpy as np
 from ..dataset import Conversion, Trace
 from ..errors import CrystkinInputError, DataQualityWarning, check_option, check_range
 from .baseline import cumulative_trapezoid, polynomial_baseline, sigmoidal_baseline
-from .events import IsothermalEvents, locate_isothermal_events, smooth
+from .events import IsothermalEvents, isolated_spikes, locate_isothermal_events, smooth
 from .sign import choose_exotherm, orient
 
 __all__ = ["prepare_isothermal", "BASELINE_METHODS", "EARLY_START_FRACTION"]
@@ -176,6 +176,14 @@ def prepare_isothermal(trace, *, window=None, baseline="end", exotherm=None, hol
     if snr < min_snr:
         found.append(f"signal-to-noise too low: peak/noise = {snr:.1f} < {min_snr:g}; limits, "
                      "baseline and enthalpy are uncertain")
+    spikes, _ = isolated_spikes(t, y - B, noise=ev.noise)
+    _, spike_area = isolated_spikes(ts, c, noise=ev.noise)
+    if spikes.size:
+        inside = (f"; those inside the event window add {spike_area / area:+.1%} to the area"
+                  if spike_area else "")
+        found.append(f"{spikes.size} isolated spike(s) (single samples far from their "
+                     f"neighbours, first at {t[spikes[0]]:.1f} s) can distort the baseline, "
+                     f"the event limits and the enthalpy{inside}: remove them from the raw file")
     for msg in found:
         _warnings.warn(f"{trace.run_id}: {msg}", DataQualityWarning, stacklevel=2)
 
@@ -193,6 +201,7 @@ def prepare_isothermal(trace, *, window=None, baseline="end", exotherm=None, hol
         "cut_off": bool(ev.window.cut_off),
         "monotone_adjustment": adjustment, "monotone_enforced": adjustment > _MONOTONE_NOTE,
         "area": area, "area_unit": "J/kg" if trace.specific else "J", "enthalpy_unit": unit,
+        "spikes": int(spikes.size), "spike_area": spike_area,
     }
     return Conversion(
         run_id=trace.run_id, kind="isothermal", time=ts, temperature=trace.temperature[sl],

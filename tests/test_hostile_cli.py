@@ -20,6 +20,7 @@ import os
 import re
 import subprocess
 import sys
+import time
 from pathlib import Path
 
 import numpy as np
@@ -296,6 +297,28 @@ def test_file_over_the_size_limit_is_refused_before_reading(tmp_path, monkeypatc
     assert f.stat().st_size > 1000 * 512
     msg = _one_line_error(_invoke(["peek", f]), "big.csv", "too large")
     assert "MB" in msg
+
+
+def test_text_file_with_far_more_lines_than_rows_allowed(tmp_path, monkeypatch):
+    """Refused from the line count, before any row is parsed (limit + 10,000 free lines)."""
+    _small_limit(monkeypatch, 200)
+    f = _write(tmp_path / "lines.csv", HEADER + "\n" + "1,2,3\n" * 10_300)
+    _one_line_error(_invoke(["peek", f]), "lines.csv", "10301 lines", "limit of 200")
+
+
+def test_one_enormous_line_is_refused_quickly(tmp_path):
+    f = _write(tmp_path / "oneline.csv", b"1,2," * 1_000_000)
+    start = time.perf_counter()
+    msg = _one_line_error(_invoke(["peek", f]), "oneline.csv", "row 1")
+    assert "characters" in msg
+    assert time.perf_counter() - start < 5.0
+
+
+def test_many_rows_without_a_header_are_refused_quickly(tmp_path):
+    f = _write(tmp_path / "nohead.csv", b"1.5,125.0,0.25\n" * 300_000)
+    start = time.perf_counter()
+    _one_line_error(_invoke(["peek", f]), "nohead.csv", "no header", "row 1")
+    assert time.perf_counter() - start < 5.0
 
 
 def test_study_file_over_the_size_limit(tmp_path, monkeypatch):

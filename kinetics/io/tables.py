@@ -70,6 +70,9 @@ _NUMBER = re.compile(r"[-+]?(?:\d+(?:\.\d*)?|\.\d+)(?:[eE][-+]?\d+)?")
 _BRACKETED = re.compile(r"^(?P<name>.*?)\s*[(\[{]\s*(?P<unit>[^()\[\]{}]*?)\s*[)\]}]\s*$")
 _DELIMITERS = ("\t", ";", ",", "|", None)  # None: runs of blanks
 _SAMPLE_LINES = 100
+_EXTRA_LINES = 10_000   # header and free-text lines allowed beyond max_rows
+_MAX_LINE = 20_000      # characters in one line of a text table
+_HEADER_SEARCH = 10_000  # rows after the first numeric row within which the header must lie
 
 
 def read_trace(path, *, info: RunInfo | None = None, columns: dict | None = None,
@@ -97,7 +100,9 @@ def read_trace(path, *, info: RunInfo | None = None, columns: dict | None = None
         Worksheet name or 0-based index for XLSX files (first sheet when None); ignored
         for text files.
     max_rows : int
-        Largest number of data rows accepted.
+        Largest number of data rows accepted. A text file may hold at most 10,000 further
+        lines (header, free text), lines of at most 20,000 characters, and its header
+        must lie within 10,000 rows of the first row of numbers.
 
     Returns
     -------
@@ -350,10 +355,10 @@ def _load(path: Path, where: str, *, decimal, sheet, max_rows) -> _Table:
             " or raise max_rows", source=where)
     if suffix in EXCEL_SUFFIXES or head == b"PK\x03\x04":
         return _load_xlsx(path, where, decimal=decimal, sheet=sheet, max_rows=max_rows)
-    return _load_text(path, where, decimal=decimal)
+    return _load_text(path, where, decimal=decimal, max_rows=max_rows)
 
 
-def _load_text(path: Path, where: str, *, decimal) -> _Table:
+def _load_text(path: Path, where: str, *, decimal, max_rows) -> _Table:
     try:
         data = path.read_bytes()
     except OSError as exc:
@@ -380,6 +385,16 @@ def _load_text(path: Path, where: str, *, decimal) -> _Table:
     lines = _LINE_BREAK.split(text)
     if lines and lines[-1] == "":
         lines.pop()
+    if len(lines) > max_rows + _EXTRA_LINES:
+        raise CrystkinInputError(
+            f"{len(lines)} lines, more than the limit of {max_rows} data rows; thin the export"
+            " (fewer points per second) or raise max_rows", source=where)
+    longest = max(range(len(lines)), key=lambda i: len(lines[i]), default=None)
+    if longest is not None and len(lines[longest]) > _MAX_LINE:
+        raise CrystkinInputError(
+            f"this line has {len(lines[longest])} characters, more than a table row can have "
+            f"({_MAX_LINE}); check that this is a data file with one row per line",
+            source=where, row=longest + 1)
     if not any(line.strip() for line in lines):
         raise CrystkinInputError("the file is empty (only blank lines); export the run again",
                                  source=where)
@@ -550,6 +565,8 @@ def _locate_header(table: _Table, where: str) -> _Header:
     for i in range(table.n_rows):
         if table.is_blank(i):
             continue
+        if first_data_like is not None and i - first_data_like > _HEADER_SEARCH:
+            break
         cells = table.cells(i)
         if _data_like(cells, dec):
             if first_data_like is None:

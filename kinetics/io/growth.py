@@ -140,6 +140,21 @@ def _split_header(cell: str) -> tuple[str, str | None]:
     return cell, None
 
 
+def _read_workbook(path: Path, where: str, sheet) -> pd.DataFrame:
+    # a damaged workbook raises many types (zip, XML, KeyError, ...); all mean the same
+    try:
+        return pd.read_excel(path, sheet_name=0 if sheet is None else sheet, dtype=str,
+                             header=None, engine="openpyxl")
+    except ImportError:
+        raise
+    except Exception as exc:
+        raise CrystkinInputError(
+            f"cannot read the workbook ({type(exc).__name__}: {' '.join(str(exc).split())}); "
+            "open it in a spreadsheet program and save it again as .xlsx, or export the sheet "
+            "as CSV",
+            source=where) from None
+
+
 def _load(path: Path, where: str, decimal: str | None, sheet) -> pd.DataFrame:
     if not path.exists():
         raise CrystkinInputError("file not found; check the path", source=where)
@@ -147,8 +162,7 @@ def _load(path: Path, where: str, decimal: str | None, sheet) -> pd.DataFrame:
         raise CrystkinInputError("is a folder, not a table file", source=where)
     try:
         if path.suffix.lower() in _EXCEL:
-            df = pd.read_excel(path, sheet_name=0 if sheet is None else sheet, dtype=str,
-                               header=None, engine="openpyxl")
+            df = _read_workbook(path, where, sheet)
         else:
             text, encoding = None, "latin-1"
             for enc in ("utf-8-sig", "latin-1"):

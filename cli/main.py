@@ -61,10 +61,17 @@ def _executor(jobs: int):
     return ProcessPoolExecutor(max_workers=jobs, mp_context=mp.get_context("spawn"))
 
 
-def _check_out(out: Path, overwrite: bool) -> None:
+def _check_file(path: Path, what: str) -> None:
+    if not path.exists():
+        _fail(f"{path}: {what} not found; check the path")
+    if path.is_dir():
+        _fail(f"{path}: is a folder; give the {what} inside it")
+
+
+def _check_out(out: Path, overwrite: bool, protect=()) -> None:
     """Refuse early (before any fitting) an output folder that would be refused at the end."""
-    if out.exists() and not overwrite and (not out.is_dir() or any(out.iterdir())):
-        _fail(f"{out}: output folder exists; choose another with --out or pass --overwrite")
+    from kinetics.io.writers import check_output_destination
+    check_output_destination(out, overwrite=overwrite, protect=protect)
 
 
 def _finish(analysis, out: Path) -> None:
@@ -153,7 +160,7 @@ def demo(out, quick, seed, jobs, overwrite, fast, skip_rate_model):
 
 
 @main.command()
-@click.argument("study_file", type=click.Path(path_type=Path, dir_okay=False))
+@click.argument("study_file", type=click.Path(path_type=Path))
 @click.option("--out", type=click.Path(path_type=Path), required=True,
               help="Output folder (created; must not exist unless --overwrite).")
 @_common
@@ -163,11 +170,11 @@ def analyze(study_file, out, seed, jobs, overwrite, fast, skip_rate_model):
         from kinetics.io import read_study
         from kinetics.workflow import analyse_study, resume_folder, write_study
 
-        if not study_file.exists():
-            _fail(f"{study_file}: study file not found; check the path")
+        _check_file(study_file, "study file")
         study = read_study(study_file)
         click.echo(f"crystkin: {len(study.traces)} runs read from {study_file}", err=True)
-        _check_out(out, overwrite)
+        _check_out(out, overwrite, protect=[study_file] + [t.info.source for t in study.traces
+                                                          if t.info.source])
         cache = resume_folder(out)
         if cache.exists():
             click.echo(f"crystkin: resuming an interrupted analysis ({cache})", err=True)
@@ -186,7 +193,7 @@ def analyze(study_file, out, seed, jobs, overwrite, fast, skip_rate_model):
 
 
 @main.command()
-@click.argument("file", type=click.Path(path_type=Path, dir_okay=False))
+@click.argument("file", type=click.Path(path_type=Path))
 @click.option("--kind", type=click.Choice(["isothermal", "cooling", "heating"]), default=None,
               help="Temperature programme (default: guessed from the temperature column).")
 @click.option("--temperature", default=None, help='Hold temperature, e.g. "125 degC".')
@@ -201,8 +208,7 @@ def peek(file, kind, temperature, rate, mass, exotherm):
         from kinetics.io import read_trace
         from kinetics.units import celsius, parse_quantity
 
-        if not file.exists():
-            _fail(f"{file}: file not found; check the path")
+        _check_file(file, "file")
         trace = read_trace(file)
         info = trace.info
         changes = {}

@@ -86,8 +86,8 @@ FULL = """
     hold_temperature = "125 degC"
 
     [analysis]
-    avrami_range = [0.03, 0.2]
-    seed = 7
+    reference = "neat"
+    run_to_run_cv = 0.05
 """
 
 
@@ -122,7 +122,7 @@ def test_full_study(project, monkeypatch):
     assert s["tm0"] == pytest.approx(459.15)
     assert s["tg"] == pytest.approx(263.15)
     assert s["polymer"] == "iPP"
-    assert s["analysis"] == {"avrami_range": [0.03, 0.2], "seed": 7}
+    assert s["analysis"] == {"reference": "neat", "run_to_run_cv": 0.05}
     assert study.groups == ("neat", "N-A")
 
 

@@ -285,13 +285,6 @@ def _refused_destination(lab, kind):
     return out
 
 
-@pytest.mark.xfail(strict=True, reason=(
-    "cli/main.py _check_out refuses only a non-empty folder without --overwrite; with "
-    "--overwrite a foreign folder, the inputs' folder, a file or a symbolic link passes, "
-    "every run is fitted, the resume cache is written beside it (workflow.resume_folder) "
-    "and atomic_output_dir refuses only at the end, leaving the cache behind; fix: call "
-    "kinetics.io.writers.check_output_destination(out, overwrite=..., protect=inputs) "
-    "in _check_out"))
 @pytest.mark.parametrize("kind", ["foreign folder", "inputs folder", "file", "link"])
 def test_refused_destination_leaves_nothing_behind(lab, monkeypatch, kind):
     out = _refused_destination(lab, kind)

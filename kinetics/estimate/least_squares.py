@@ -160,7 +160,7 @@ def fit_least_squares(problem: FitProblem, *, x0=None, max_nfev: int | None = No
     res = None
     for _ in range(passes):
         res = least_squares(fun, x0, jac=jac, bounds=(lo, hi), x_scale="jac", method="trf",
-                            max_nfev=max_nfev, loss=loss, xtol=1e-12, ftol=1e-12, gtol=1e-12)
+                            max_nfev=max_nfev, loss=loss, xtol=1e-12, ftol=1e-12, gtol=None)
         x0 = res.x
         if problem.estimates_noise and ng > 1:
             r = y - problem.predict_full(res.x[None, :])[0]

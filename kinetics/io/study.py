@@ -218,8 +218,20 @@ def _load_toml(path: Path, where: str) -> dict:
         raise CrystkinInputError(f"TOML syntax error: {msg}", source=where) from exc
 
 
+ANALYSIS_KEYS = ("reference", "run_to_run_cv", "tm0_sd_K", "kissinger", "rate_model")
+
+
 def _check_analysis(analysis: dict, where: str) -> None:
     for key, value in analysis.items():
+        if key not in ANALYSIS_KEYS and str(key).lower() not in _OUTPUT_WORDS:
+            near = difflib.get_close_matches(str(key), ANALYSIS_KEYS, n=1)
+            hint = f" (did you mean '{near[0]}'?)" if near else ""
+            raise CrystkinInputError(
+                f"[analysis] key '{key}' is unknown{hint}; allowed: {', '.join(ANALYSIS_KEYS)}",
+                source=where)
+        if key == "rate_model" and not isinstance(value, bool):
+            raise CrystkinInputError(
+                f"[analysis] key 'rate_model' must be true or false, got {value!r}", source=where)
         if str(key).lower() in _OUTPUT_WORDS:
             raise CrystkinInputError(
                 f"[analysis] key '{key}': the study file never says where outputs go; remove "

@@ -54,14 +54,16 @@ def test_demo_console_script_end_to_end(tmp_path):
 def test_analyze_writes_and_refuses_to_overwrite(tmp_path, demo_study):
     runner = CliRunner()
     out = tmp_path / "res"
-    r = runner.invoke(main, ["analyze", str(demo_study), "--out", str(out), "--fast"])
+    r = runner.invoke(main, ["analyze", str(demo_study), "--out", str(out), "--fast",
+                             "--skip-rate-model"])
     assert r.exit_code == 0, r.output
     first = (out / "tables" / "isothermal_runs.csv").read_bytes()
-    r2 = runner.invoke(main, ["analyze", str(demo_study), "--out", str(out), "--fast"])
+    r2 = runner.invoke(main, ["analyze", str(demo_study), "--out", str(out), "--fast",
+                              "--skip-rate-model"])
     assert r2.exit_code == 2
     assert "exists" in r2.stderr and "Traceback" not in r2.output
     r3 = runner.invoke(main, ["analyze", str(demo_study), "--out", str(out), "--fast",
-                              "--overwrite"])
+                              "--overwrite", "--skip-rate-model"])
     assert r3.exit_code == 0, r3.output
     assert (out / "tables" / "isothermal_runs.csv").read_bytes() == first
 
@@ -96,7 +98,8 @@ def test_one_bad_run_is_listed_and_others_are_analysed(tmp_path, demo_study):
     text += ('\n[[run]]\nname = "missing-run"\nfile = "nowhere.csv"\nkind = "isothermal"\n'
              'temperature = "130 degC"\nmass = "5 mg"\n')
     bad.write_text(text)
-    r = CliRunner().invoke(main, ["analyze", str(bad), "--out", str(tmp_path / "o"), "--fast"])
+    r = CliRunner().invoke(main, ["analyze", str(bad), "--out", str(tmp_path / "o"), "--fast",
+                                  "--skip-rate-model"])
     assert r.exit_code == 1, r.output
     assert "missing-run" in r.stderr and "nowhere.csv" in r.stderr
     t = pd.read_csv(tmp_path / "o" / "tables" / "isothermal_runs.csv")

@@ -273,6 +273,51 @@ def _growth(res: StudyAnalysis, opts: dict) -> None:
             parts.append(t)
     if parts:
         res.tables["hoffman_lauritzen"] = pd.concat(parts, ignore_index=True)
+    _growth_from_cooling(res, opts)
+
+
+def _growth_from_cooling(res: StudyAnalysis, opts: dict) -> None:
+    """Kg from the isoconversional E(T) of the cooling runs (Vyazovkin & Sbirrazzuoli,
+    Macromol. Rapid Commun. 25 (2004) 733), compared with the isothermal Kg."""
+    from .analyses.growth import compare_kg, hl_from_activation_energy
+
+    tg = res.study.settings.get("tg")
+    if res.cooling is None or tg is None:
+        return
+    fits, comparisons = [], []
+    for group, fr in res.cooling.friedman.items():
+        tm = _equilibrium_melting(res, group, opts)
+        if tm is None:
+            continue
+        t = fr.table()
+        t = t[t["estimable"].astype(bool)].dropna(subset=["E_kJ_per_mol"])
+        t = t[(t["T_mean_K"] < tm[0] - 1.0) & (t["T_mean_K"] > float(tg) - 29.0)]
+        if len(t) < 3:
+            continue
+        E = t["E_kJ_per_mol"].to_numpy() * 1e3
+        E_sd = (t["E_kJ_per_mol_hi95"] - t["E_kJ_per_mol_lo95"]).to_numpy() * 1e3 / 3.92
+        fit = _attempt(res, f"Hoffman-Lauritzen from E(T) ({group})", lambda t=t, E=E, s=E_sd,
+                       g=group, tm=tm: hl_from_activation_energy(
+                           t["T_mean_K"].to_numpy(), E, E_sd=s, Tm0=tm[0], Tm0_sd=tm[1],
+                           Tg=float(tg), seed=_seed(res.seed, f"hlE:{g}"), group=g))
+        if fit is None:
+            continue
+        tab = fit.table()
+        if "group" not in tab.columns:
+            tab.insert(0, "group", group)
+        fits.append(tab)
+        if group in res.growth:
+            cmp_ = _attempt(res, f"Kg comparison ({group})", lambda f=fit, g=group: compare_kg(
+                res.growth[g], f, seed=_seed(res.seed, f"kg:{g}")))
+            if cmp_ is not None:
+                c = cmp_.table()
+                if "group" not in c.columns:
+                    c.insert(0, "group", group)
+                comparisons.append(c)
+    if fits:
+        res.tables["hoffman_lauritzen_from_E"] = pd.concat(fits, ignore_index=True)
+    if comparisons:
+        res.tables["hoffman_lauritzen_kg_comparison"] = pd.concat(comparisons, ignore_index=True)
 
 
 def _secondary_one(args):

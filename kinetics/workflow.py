@@ -104,7 +104,8 @@ def analyse_study(study: Study, *, seed: int = 0, executor=None, sample: bool = 
             if progress:
                 progress(f"[{done}/{total}] isothermal {run_id}")
         batch = analyse_isotherms(iso, seed=seed, executor=executor, progress=tick,
-                                  cache_dir=None if cache_dir is None else Path(cache_dir) / "isothermal",
+                                  cache_dir=(None if cache_dir is None
+                                             else Path(cache_dir) / "isothermal"),
                                   sample=sample, **(fit_options or {}))
         res.isothermal = batch
         res.failures.extend(batch.failures)
@@ -534,7 +535,8 @@ def _write_figures(analysis: StudyAnalysis, out: Path) -> list[FigureFile]:
         ref = analysis.comparison.reference
         texts = {
             "half_time_ratio": f"Half-time of each formulation divided by that of {ref}, "
-                               "against hold temperature (median, 95 % interval; below 1 = faster).",
+                               "against hold temperature (median, 95 % interval; "
+                               "below 1 = faster).",
             "cooling_shift": f"Shift of the cooling peak (filled) and onset (open) temperature "
                              f"against {ref}, by cooling rate (95 % intervals).",
             "rate_curve_ratio": f"Rate-model ratio K(T) of each formulation over {ref} "

@@ -94,6 +94,11 @@ class RunInfo:
             raise CrystkinInputError(
                 f"a {self.kind} run needs its rate (key 'rate', for example '10 K/min')",
                 source=where)
+        for key in ("temperature", "rate", "mass", "hold_temperature", "delta_h100"):
+            value = getattr(self, key)
+            if value is not None and not np.isfinite(value):
+                raise CrystkinInputError(f"{key} must be a finite number, got {value!r}",
+                                         source=where)
         if self.rate is not None and not self.rate > 0:
             raise CrystkinInputError(
                 f"rate must be positive (the kind says the direction), got {self.rate} K/s",

@@ -270,6 +270,15 @@ def _as_kind(trace, kind):
         rate=(trace.info.rate or 10 / 60) if kind != "isothermal" else None)
 
 
+def _relabel(trace, kind):
+    """``_as_kind``, or None when the data model refuses the label (hold below 0 K)."""
+    try:
+        return _as_kind(trace, kind)
+    except CrystkinInputError as exc:
+        _check_message(exc)
+        return None
+
+
 PREPARERS = {
     "isothermal": (prepare_isothermal, _check_conversion),
     "cooling": (prepare_cooling, _check_conversion),
@@ -288,7 +297,9 @@ def test_preparation_of_hostile_runs(trace):
 @given(trace=hostile_traces(), kind=st.sampled_from(["isothermal", "cooling", "heating"]))
 def test_mislabelled_runs(trace, kind):
     """Arrays of any programme under any label (isothermal that ramps, cooling that heats)."""
-    relabelled = _as_kind(trace, kind)
+    relabelled = _relabel(trace, kind)
+    if relabelled is None:
+        return
     fn, check = PREPARERS[kind]
     _run(fn, relabelled, check)
 
@@ -299,7 +310,9 @@ def test_mislabelled_runs(trace, kind):
 def test_hostile_options(trace, data):
     """User-given windows (inside, outside, reversed, degenerate) and baselines."""
     kind = data.draw(st.sampled_from(["isothermal", "cooling"]))
-    tr = _as_kind(trace, kind)
+    tr = _relabel(trace, kind)
+    if tr is None:
+        return
     if kind == "isothermal":
         t0, t1 = float(tr.time[0]), float(tr.time[-1])
         window = data.draw(st.sampled_from([
@@ -501,3 +514,15 @@ def test_isolated_spike_area_by_hand():
     assert area == pytest.approx(5.0)
     idx, area = isolated_spikes(t, np.exp(-0.5 * ((t - 25.0) / 3.0) ** 2), noise=0.01)
     assert idx.size == 0 and area == 0.0
+
+
+@pytest.mark.parametrize("key", ["temperature", "rate", "mass", "hold_temperature"])
+@pytest.mark.parametrize("value", [float("inf"), float("-inf"), float("nan")])
+def test_run_information_must_be_finite(key, value):
+    """An overflowing quantity ('1e400 degC' parses to inf) is refused by the data model."""
+    base = {"temperature": 398.15} if key != "rate" else {}
+    kind = "heating" if key in ("rate", "hold_temperature") else "isothermal"
+    fields = {"run_id": "r", "kind": kind, **({"rate": 0.1} if kind == "heating" else base),
+              key: value}
+    with pytest.raises(CrystkinInputError, match="finite|positive"):
+        RunInfo(**fields)

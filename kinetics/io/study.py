@@ -218,7 +218,8 @@ def _load_toml(path: Path, where: str) -> dict:
         raise CrystkinInputError(f"TOML syntax error: {msg}", source=where) from exc
 
 
-ANALYSIS_KEYS = ("reference", "run_to_run_cv", "tm0_sd_K", "kissinger", "rate_model")
+ANALYSIS_KEYS = ("reference", "run_to_run_cv", "tm0_sd_K", "kissinger", "rate_model",
+                 "hold_out")
 
 
 def _check_analysis(analysis: dict, where: str) -> None:
@@ -229,6 +230,11 @@ def _check_analysis(analysis: dict, where: str) -> None:
             raise CrystkinInputError(
                 f"[analysis] key '{key}' is unknown{hint}; allowed: {', '.join(ANALYSIS_KEYS)}",
                 source=where)
+        if key == "hold_out" and not (isinstance(value, list)
+                                      and all(isinstance(v, str) for v in value)):
+            raise CrystkinInputError(
+                f"[analysis] key 'hold_out' must be a list of run names, such as "
+                f'["PX-40_cool20"], got {value!r}', source=where)
         if key == "rate_model" and not isinstance(value, bool):
             raise CrystkinInputError(
                 f"[analysis] key 'rate_model' must be true or false, got {value!r}", source=where)
@@ -299,9 +305,10 @@ def _text(value, key: str, what: str, where: str) -> str:
 
 
 def _positive(value: float, key: str, where: str) -> None:
-    if not value > 0:
+    if not (value > 0 and math.isfinite(value)):
         raise CrystkinInputError(
-            f"key '{key}' must be positive, got {value:g} in SI units (K, K/s, kg, J/kg)",
+            f"key '{key}' must be positive and finite, got {value:g} in SI units (K, K/s, kg, "
+            "J/kg)",
             source=where)
 
 

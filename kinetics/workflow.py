@@ -371,7 +371,7 @@ def _crystallinity(res: StudyAnalysis) -> None:
         res.tables["crystallinity"] = t
 
 
-def _global_job(group, iso, cool, Tm0, T_inf, Tg, seed, study_name, sample):
+def _global_job(group, iso, cool, Tm0, T_inf, Tg, seed, study_name, sample, hold_out=()):
     """One formulation's joint rate model (module level: runs in worker processes).
 
     Returns only picklable pieces: tables, the exported model and the run bands.
@@ -380,8 +380,10 @@ def _global_job(group, iso, cool, Tm0, T_inf, Tg, seed, study_name, sample):
     from .errors import CrystkinInputError
 
     try:
+        ids = {t.run_id for t, _ in (*iso, *cool)}
         r = fit_global_rate(iso, cool, Tm0=Tm0, T_inf=T_inf, Tg=Tg, seed=seed, sample=sample,
-                            max_points_per_run=150)
+                            max_points_per_run=150,
+                            hold_out=tuple(h for h in hold_out if h in ids))
     except CrystkinInputError as exc:
         return group, None, f"rate model K(T) ({group}) not possible: {exc}"
     out = {"table": r.table(), "summary": r.summary(), "checks": r.checks,
@@ -412,7 +414,8 @@ def _global(res: StudyAnalysis, opts: dict, executor, sample: bool) -> None:
                              "[study] table of the study file")
             continue
         jobs.append((group, iso.get(group, []), cool.get(group, []), tm[0], float(tg) - 30.0,
-                     float(tg), _seed(res.seed, f"global:{group}"), res.study.name, sample))
+                     float(tg), _seed(res.seed, f"global:{group}"), res.study.name, sample,
+                     tuple(opts.get("hold_out", ()))))
     if not jobs:
         return
     if executor is None:

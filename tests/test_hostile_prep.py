@@ -22,6 +22,7 @@ import math
 import os
 import signal
 import sys
+import threading
 import time
 import warnings
 from contextlib import contextmanager
@@ -51,7 +52,8 @@ class _Hang(Exception):
 @contextmanager
 def time_guard(limit=CALL_LIMIT_S):
     """Fail (not hang) when the block runs longer than ``limit`` seconds."""
-    use_alarm = sys.platform != "win32" and hasattr(signal, "setitimer")
+    use_alarm = (sys.platform != "win32" and hasattr(signal, "setitimer")
+                 and threading.current_thread() is threading.main_thread())
     if use_alarm:
         def _ring(signum, frame):
             raise _Hang(f"preparation took longer than {limit} s")

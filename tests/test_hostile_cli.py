@@ -561,3 +561,34 @@ def test_damaged_workbook_for_the_growth_readers(tmp_path):
     for fn in (read_rate_table, read_radius_table):
         with pytest.raises(CrystkinInputError, match="rates.xlsx.*workbook"):
             fn(f)
+
+
+@pytest.mark.xfail(strict=True, reason=(
+    "kinetics/estimate (least-squares covariance, via fit_isotherm(sample=False) and "
+    "analyze --fast): below a peak of about 1e-11 W the 95 % interval of n and t_half "
+    "collapses to zero width (n 3.4382 [3.4382, 3.4382]) while the estimate stays right; "
+    "cause (checked): the SVD cut-off in fit_least_squares works on the unscaled Jacobian, "
+    "whose shape-parameter columns scale with the signal while others do not, so those "
+    "directions are dropped; scaling the columns before the SVD fixes small units (check "
+    "large ones too: a quick column-scaled patch broke the 1e30 case)"))
+def test_interval_width_does_not_depend_on_the_signal_unit():
+    """Same run, heat flow times 1e-10: the noise scales with the signal, so the relative
+    uncertainty of n and t_half must stay the same (the likelihood is scale-free)."""
+    import warnings
+
+    from kinetics.analyses.isothermal import fit_isotherm
+    from kinetics.dataset import RunInfo, Trace
+
+    t = np.arange(600) * 0.5
+    q = 1e-3 * (np.exp(-0.5 * ((t - 150.0) / 20.0) ** 2)
+                + 1e-3 * np.random.default_rng(0).normal(size=t.size))
+    widths = {}
+    for scale in (1.0, 1e-10):
+        tr = Trace(RunInfo("r", "isothermal", temperature=398.15, mass=5e-6, source="r.csv"),
+                   t, np.full(t.size, 398.15), q * scale)
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore")
+            row = fit_isotherm(tr, sample=False).row()
+        widths[scale] = row["n_hi95"] - row["n_lo95"]
+    assert widths[1.0] > 0
+    assert widths[1e-10] == pytest.approx(widths[1.0], rel=0.05)

@@ -41,6 +41,7 @@ class _Guard:
         from kinetics.errors import DataQualityWarning
         # data-quality findings are recorded in the tables and the report
         warnings.simplefilter("ignore", DataQualityWarning)
+        warnings.simplefilter("ignore", RuntimeWarning)
         return self
 
     def __exit__(self, exc_type, exc, tb):

@@ -563,14 +563,6 @@ def test_damaged_workbook_for_the_growth_readers(tmp_path):
             fn(f)
 
 
-@pytest.mark.xfail(strict=True, reason=(
-    "kinetics/estimate (least-squares covariance, via fit_isotherm(sample=False) and "
-    "analyze --fast): below a peak of about 1e-11 W the 95 % interval of n and t_half "
-    "collapses to zero width (n 3.4382 [3.4382, 3.4382]) while the estimate stays right; "
-    "cause (checked): the SVD cut-off in fit_least_squares works on the unscaled Jacobian, "
-    "whose shape-parameter columns scale with the signal while others do not, so those "
-    "directions are dropped; scaling the columns before the SVD fixes small units (check "
-    "large ones too: a quick column-scaled patch broke the 1e30 case)"))
 def test_interval_width_does_not_depend_on_the_signal_unit():
     """Same run, heat flow times 1e-10: the noise scales with the signal, so the relative
     uncertainty of n and t_half must stay the same (the likelihood is scale-free)."""

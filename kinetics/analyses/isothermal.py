@@ -317,7 +317,8 @@ def fit_isotherm(trace: Trace, *, conversion: Conversion | None = None, seed: in
     seed : int
         Sampler seed (start ball and moves).
     sample : bool
-        False gives least squares only (fast; intervals from the covariance).
+        False gives least squares only (fast; intervals from draws of the
+        least-squares normal approximation, kept inside the priors' support).
     transient, max_points
         See :func:`avrami_heat_flow_problem`.
     x_range : tuple
@@ -361,6 +362,12 @@ def fit_isotherm(trace: Trace, *, conversion: Conversion | None = None, seed: in
     else:
         rng = np.random.default_rng(seed)
         sim = rng.multivariate_normal(lsq.x, lsq.cov, size=4000, method="svd")
+        lo = np.array([p.prior.support[0] for p in problem.all_parameters])
+        hi = np.array([p.prior.support[1] for p in problem.all_parameters])
+        sim = sim[np.all((sim >= lo) & (sim <= hi), axis=1)]  # the priors' support
+        if len(sim) < 100:
+            sim = np.clip(rng.multivariate_normal(lsq.x, lsq.cov, size=4000, method="svd"),
+                          lo, hi)
         draws = {name: sim[:, i] for i, name in enumerate(problem.names)}
     derived = _derive(draws, trace, conversion)
     if lin:

@@ -171,9 +171,11 @@ def fit_least_squares(problem: FitProblem, *, x0=None, max_nfev: int | None = No
     p = len(res.x)
     dof = len(y) - p
     J = res.jac
-    _, s, VT = np.linalg.svd(J, full_matrices=False)
-    tiny = s > s.max() * np.finfo(float).eps * max(J.shape) if s.size else s
-    inv = (VT[tiny].T / s[tiny] ** 2) @ VT[tiny]
+    scale = np.linalg.norm(J, axis=0)
+    scale = np.where(np.isfinite(scale) & (scale > 0), scale, 1.0)
+    _, s, VT = np.linalg.svd(J / scale, full_matrices=False)
+    keep = s > s.max() * np.finfo(float).eps * max(J.shape) if s.size else s
+    inv = ((VT[keep].T / s[keep] ** 2) @ VT[keep]) / scale[:, None] / scale[None, :]
     if problem.estimates_noise:
         s2 = float(np.sum(res.fun ** 2) / dof) if dof > 0 else float("nan")
         counts = np.maximum(np.bincount(groups, None, ng), 1)

@@ -17,7 +17,7 @@ result always carries the published warning that it is unsound on cooling.
 
 from __future__ import annotations
 
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 
 import numpy as np
 import pandas as pd
@@ -30,7 +30,7 @@ from ..estimate import interval_columns
 from ..models.ozawa import kissinger_linearised
 from ..prep.cooling import conversion_noise_map, cooling_rate, local_rate
 from ..units import celsius
-from .nonisothermal import LineDraws, line_draws, require_rates
+from .nonisothermal import LineDraws, RowsResult, estimate_columns, line_draws, require_rates
 from .seeds import run_seed
 
 __all__ = [
@@ -97,11 +97,7 @@ class FriedmanRow:
              "T_mean_degC": celsius(float(np.mean(T))), "T_min_degC": celsius(float(T.min())),
              "T_max_degC": celsius(float(T.max())), "estimable": self.estimable,
              "n_runs": len(self.T_K)}
-        for name in ("E_kJ_per_mol", "ln_Af"):
-            if self.draws is not None:
-                r.update(interval_columns(name, self.draws[name]))
-            else:
-                r.update({name: np.nan, f"{name}_lo95": np.nan, f"{name}_hi95": np.nan})
+        r.update(estimate_columns(self.draws, ("E_kJ_per_mol", "ln_Af")))
         r["scatter_factor"] = self.fit.scatter_factor if self.fit is not None else np.nan
         r["r2_linear"] = self.fit.line.r2 if self.fit is not None else np.nan
         r["note"] = self.note
@@ -109,16 +105,9 @@ class FriedmanRow:
 
 
 @dataclass(frozen=True)
-class FriedmanResult:
-    """Friedman's E against conversion and mean temperature."""
-
-    rows: tuple[FriedmanRow, ...]
-    warnings: tuple[str, ...] = ()
-    provenance: dict = field(default_factory=dict)
-
-    def table(self) -> pd.DataFrame:
-        """One row per conversion: X, T_mean_degC, E_kJ_per_mol (median, 95 %), ln_Af, ..."""
-        return pd.DataFrame([r.row() for r in self.rows])
+class FriedmanResult(RowsResult):
+    """Friedman's E against conversion and mean temperature. One row per point:
+    see :meth:`FriedmanRow.row` for the columns."""
 
 
 def friedman_points(T_K, ln_rate, *, sigma=None, seed=0, X=float("nan"),
@@ -358,16 +347,9 @@ class VyazovkinRow:
 
 
 @dataclass(frozen=True)
-class VyazovkinResult:
-    """Vyazovkin's E against conversion and mean temperature."""
-
-    rows: tuple[VyazovkinRow, ...]
-    warnings: tuple[str, ...] = ()
-    provenance: dict = field(default_factory=dict)
-
-    def table(self) -> pd.DataFrame:
-        """One row per conversion: X, X_from, X_to, T_mean_degC, E_kJ_per_mol (median, 95 %), ..."""
-        return pd.DataFrame([r.row() for r in self.rows])
+class VyazovkinResult(RowsResult):
+    """Vyazovkin's E against conversion and mean temperature. One row per point:
+    see :meth:`VyazovkinRow.row` for the columns."""
 
 
 def _resampled_E(runs_t, runs_T, t_lo, t_hi, E0, T_ref, width0):

@@ -54,6 +54,7 @@ from ..units import celsius
 from .seeds import run_seed
 
 __all__ = [
+    "RowsResult", "estimate_columns",
     "LineDraws", "line_draws", "JEZIORNY_CAUTION", "JeziornyFit", "JeziornyResult",
     "jeziorny_points", "jeziorny", "OzawaRow", "OzawaResult", "ozawa_points", "ozawa",
     "MoRow", "MoResult", "mo_points", "mo", "CoolingResult", "analyse_cooling",
@@ -210,6 +211,31 @@ def _group_of(conv, groups):
 
 
 # --- Jeziorny ------------------------------------------------------------------------------
+
+def estimate_columns(draws: dict | None, names) -> dict:
+    """``Q``, ``Q_lo95``, ``Q_hi95`` for each name, NaN when there are no draws."""
+    r = {}
+    for name in names:
+        if draws is not None:
+            r.update(interval_columns(name, draws[name]))
+        else:
+            r.update({name: np.nan, f"{name}_lo95": np.nan, f"{name}_hi95": np.nan})
+    return r
+
+
+@dataclass(frozen=True)
+class RowsResult:
+    """Result of a method evaluated at several temperatures or conversions: one row
+    object per point (each with ``row() -> dict``), warnings and provenance."""
+
+    rows: tuple
+    warnings: tuple[str, ...] = ()
+    provenance: dict = field(default_factory=dict)
+
+    def table(self) -> pd.DataFrame:
+        """One table row per point."""
+        return pd.DataFrame([r.row() for r in self.rows])
+
 
 @dataclass(frozen=True)
 class JeziornyFit:
@@ -393,11 +419,7 @@ class OzawaRow:
     def row(self) -> dict:
         r = {"group": self.group, "T_K": self.T_K, "T_degC": celsius(self.T_K),
              "estimable": self.estimable, "n_rates": len(self.rates_K_per_min)}
-        for name in ("m", "lnK_T"):
-            if self.draws is not None:
-                r.update(interval_columns(name, self.draws[name]))
-            else:
-                r.update({name: np.nan, f"{name}_lo95": np.nan, f"{name}_hi95": np.nan})
+        r.update(estimate_columns(self.draws, ("m", "lnK_T")))
         r["scatter_factor"] = self.fit.scatter_factor if self.fit is not None else np.nan
         r["r2_linear"] = self.fit.line.r2 if self.fit is not None else np.nan
         r["rates_K_per_min"] = ", ".join(f"{b:.3g}" for b in self.rates_K_per_min)
@@ -406,16 +428,9 @@ class OzawaRow:
 
 
 @dataclass(frozen=True)
-class OzawaResult:
-    """Ozawa's m(T) and K(T) across rates."""
-
-    rows: tuple[OzawaRow, ...]
-    warnings: tuple[str, ...] = ()
-    provenance: dict = field(default_factory=dict)
-
-    def table(self) -> pd.DataFrame:
-        """One row per temperature: m, lnK_T (median, 95 %), estimable, note, ..."""
-        return pd.DataFrame([r.row() for r in self.rows])
+class OzawaResult(RowsResult):
+    """Ozawa's m(T) and K(T) across rates. One row per point:
+    see :meth:`OzawaRow.row` for the columns."""
 
 
 def ozawa_points(beta_K_per_min, X, *, sigma=None, seed=0, T_K=float("nan"),
@@ -587,11 +602,7 @@ class MoRow:
         r = {"group": self.group, "X": self.X, "T_mean_K": self.T_mean_K,
              "T_mean_degC": celsius(self.T_mean_K), "estimable": self.estimable,
              "n_rates": len(self.rates_K_per_min)}
-        for name in ("a", "log10_F_T"):
-            if self.draws is not None:
-                r.update(interval_columns(name, self.draws[name]))
-            else:
-                r.update({name: np.nan, f"{name}_lo95": np.nan, f"{name}_hi95": np.nan})
+        r.update(estimate_columns(self.draws, ("a", "log10_F_T")))
         r["scatter_factor"] = self.fit.scatter_factor if self.fit is not None else np.nan
         r["rates_K_per_min"] = ", ".join(f"{b:.3g}" for b in self.rates_K_per_min)
         r["note"] = self.note
@@ -599,16 +610,9 @@ class MoRow:
 
 
 @dataclass(frozen=True)
-class MoResult:
-    """Mo's a and F(T) at chosen conversions."""
-
-    rows: tuple[MoRow, ...]
-    warnings: tuple[str, ...] = ()
-    provenance: dict = field(default_factory=dict)
-
-    def table(self) -> pd.DataFrame:
-        """One row per conversion: a, log10_F_T (median, 95 %), T_mean_degC, ..."""
-        return pd.DataFrame([r.row() for r in self.rows])
+class MoResult(RowsResult):
+    """Mo's a and F(T) at chosen conversions. One row per point:
+    see :meth:`MoRow.row` for the columns."""
 
 
 def mo_points(beta_K_per_min, t_min, *, sigma_log_t=None, seed=0, X=float("nan"),

@@ -45,7 +45,6 @@ def main(argv=None):
     from kinetics.analyses.isothermal import (
         analyse_isotherms,
         avrami_heat_flow_problem,
-        fit_isotherm,
     )
     from kinetics.estimate import fit_least_squares, sample_posterior
     from kinetics.prep import prepare_isothermal
@@ -90,8 +89,8 @@ def main(argv=None):
 
     with tempfile.TemporaryDirectory() as tmp:
         study = read_study(write_demo_study(Path(tmp) / "in", quick=args.quick))
-        from concurrent.futures import ProcessPoolExecutor
         import multiprocessing as mp
+        from concurrent.futures import ProcessPoolExecutor
         t = time.perf_counter()
         with ProcessPoolExecutor(2, mp_context=mp.get_context("spawn")) as ex:
             run_study(study, Path(tmp) / "out", executor=ex)
@@ -109,7 +108,8 @@ def main(argv=None):
     out.mkdir(parents=True, exist_ok=True)
     df.to_csv(out / "latest.csv", index=False, float_format="%.4g")
     import platform
-    head = (f"crystkin benchmarks, {time.strftime('%Y-%m-%d')}, Python {platform.python_version()}, "
+    head = (f"crystkin benchmarks, {time.strftime('%Y-%m-%d')}, "
+            f"Python {platform.python_version()}, "
             f"{os.cpu_count()} cores{' (quick)' if args.quick else ''}\n\n")
     from kinetics.io.writers import markdown_table
     (out / "latest.md").write_text(head + markdown_table(df) + "\n", encoding="utf-8")

@@ -14,8 +14,8 @@ import numpy as np
 import pandas as pd
 import pytest
 from click.testing import CliRunner
-
 from crystkin_cli.main import main
+
 from kinetics.demo import write_demo_study
 
 

@@ -55,6 +55,7 @@ from importlib.metadata import version as _pkg_version
 
 import numpy as np
 import pandas as pd
+from scipy.constants import R as _R
 
 from ..constants import T_INF_OFFSET
 from ..dataset import Conversion, Trace
@@ -62,7 +63,7 @@ from ..errors import CrystkinInputError
 from ..estimate import fit_least_squares, fit_line, interval_columns, sample_posterior, summarise
 from ..estimate.problem import FitProblem
 from ..models.hoffman_lauritzen import hl_ln_rate
-from ..models.nakamura import nakamura_conversion, nakamura_integral
+from ..models.nakamura import nakamura_conversion
 from ..models.params import Normal, Parameter, Uniform
 from ..prep.cells import block_average as _block_average
 from ..units import celsius
@@ -356,10 +357,6 @@ def _build_problem(specs, *, T_ref, U_star, T_inf, Tm0, priors=None, start=None)
 
     iso = [i for i, s in enumerate(specs) if s.kind == "isothermal"]
     cool = [i for i, s in enumerate(specs) if s.kind == "cooling"]
-    T_iso = np.array([specs[i].temperature for i in iso])
-    cool_T = [specs[i].grid_T for i in cool]
-    cool_len = np.cumsum([0] + [len(g) for g in cool_T])
-    T_all = np.concatenate([T_iso, *cool_T]) if (iso or cool) else np.zeros(0)
 
     linear, lg = [], []
     for s in specs:
@@ -400,55 +397,8 @@ def _build_problem(specs, *, T_ref, U_star, T_inf, Tm0, priors=None, start=None)
         return np.column_stack([theta[:, 0], theta[:, 1] - shift, theta[:, 2],
                                 c["U_star"], c["T_inf"], c["Tm0"]])
 
-    static = []
-    for j, s in enumerate(specs):
-        cols = [np.ones(len(s.y)), s.centres - s.t_ref]
-        if s.transient_tau is not None:
-            hold = s.conversion.hold_start
-            cols_t = np.exp(-np.clip(s.centres - hold, 0.0, None) / s.transient_tau)
-        else:
-            cols_t = None
-        st = {"inv_width": 1.0 / np.diff(s.edges)[None, :], "fixed": np.stack(cols)[None],
-              "transient": None if cols_t is None else cols_t[None, None, :]}
-        if s.kind == "isothermal":
-            st["k"] = iso.index(j)
-            st["t0_col"] = t0_col.get(s.run_id)
-            st["elapsed"] = np.clip(s.edges - s.t0, 0.0, None)[None, :]
-            st["edges"] = s.edges[None, :]
-        else:
-            k = cool.index(j)
-            st["a"] = len(iso) + int(cool_len[k])
-            st["b"] = st["a"] + len(s.grid)
-        static.append(st)
-
-    def basis(theta):
-        m = theta.shape[0]
-        d = model_draws(theta)
-        n = d[:, 0:1]
-        with np.errstate(all="ignore"):
-            K = rate_constant(T_all, d) if len(T_all) else np.zeros((m, 0))
-        out = []
-        for s, st in zip(specs, static, strict=True):
-            with np.errstate(all="ignore"):
-                if s.kind == "isothermal":
-                    k = st["k"]
-                    c = st["t0_col"]
-                    el = (st["elapsed"] if c is None else
-                          np.clip(st["edges"] - theta[:, c:c + 1], 0.0, None))
-                    Xe = -np.expm1(-np.power(K[:, k:k + 1] * el, n))
-                else:
-                    # X = 1 - exp(-theta^n) at the cell edges only (Nakamura et al. 1972)
-                    th = nakamura_integral(s.grid, K[:, st["a"]:st["b"]])[:, s.edge_index]
-                    Xe = -np.expm1(-np.power(th, n))
-            N = Xe.shape[1] - 1
-            parts = [((Xe[:, 1:] - Xe[:, :-1]) * st["inv_width"])[:, None, :],
-                     np.broadcast_to(st["fixed"], (m, 2, N))]
-            if s.step:
-                parts.append((0.5 * (Xe[:, 1:] + Xe[:, :-1]))[:, None, :])
-            if st["transient"] is not None:
-                parts.append(np.broadcast_to(st["transient"], (m, 1, N)))
-            out.append(np.concatenate(parts, axis=1))
-        return out
+    basis = _BatchedBasis(specs, iso, cool, t0_col, model_draws,
+                          fixed if len(fixed) == len(_CONSTANTS) else None)
 
     y = np.concatenate([s.y for s in specs])
     groups = np.concatenate([np.full(len(s.y), g) for g, s in enumerate(specs)])
@@ -460,6 +410,117 @@ def _build_problem(specs, *, T_ref, U_star, T_inf, Tm0, priors=None, start=None)
                          basis=basis, linear=tuple(linear), linear_groups=tuple(lg),
                          noise_groups=groups, provenance=prov)
     return problem, model_draws, t0_col
+
+
+class _BatchedBasis:
+    """Heat-flow basis of every run at once: isotherms and cooling runs each on a padded grid.
+
+    Isothermal edges are padded with their last edge (zero cell width) and the
+    cooling integration grids with their last point (zero time step), so one
+    array expression serves all runs of a kind; each run's block is then cut
+    to its own length. With U*, T_inf and Tm0 fixed the temperature factors of
+    ln K are computed once.
+    """
+
+    def __init__(self, specs, iso, cool, t0_col, model_draws, fixed):
+        self.specs = specs
+        self.model_draws = model_draws
+        self.iso, self.cool = iso, cool
+        self.n_cells = [len(s.y) for s in specs]
+        self.pos = {}
+        if iso:
+            ne = max(len(specs[i].edges) for i in iso)
+            E = np.empty((len(iso), ne))
+            for k, i in enumerate(iso):
+                e = specs[i].edges
+                E[k, :len(e)], E[k, len(e):] = e, e[-1]
+                self.pos[i] = k
+            self.E = E
+            self.t0_fixed = np.array([specs[i].t0 for i in iso])
+            self.t0_cols = np.array([t0_col.get(specs[i].run_id, -1) for i in iso])
+            self.fit_t0 = self.t0_cols >= 0
+            self.T_iso = np.array([specs[i].temperature for i in iso])
+        if cool:
+            ng = max(len(specs[i].grid) for i in cool)
+            ni = max(len(specs[i].edge_index) for i in cool)
+            T = np.empty((len(cool), ng))
+            dt = np.zeros((len(cool), ng - 1))
+            idx = np.empty((len(cool), ni), dtype=int)
+            for k, i in enumerate(cool):
+                s, L = specs[i], len(specs[i].grid)
+                T[k, :L], T[k, L:] = s.grid_T, s.grid_T[-1]
+                dt[k, :L - 1] = np.diff(s.grid)
+                ei = s.edge_index
+                idx[k, :len(ei)], idx[k, len(ei):] = ei, ei[-1]
+                self.pos[i] = k
+            self.T_cool, self.dt, self.edge_idx = T, dt, idx
+        self.inv_width = [1.0 / np.diff(s.edges) for s in specs]
+        self.fixed_cols = [np.stack([np.ones(len(s.y)), s.centres - s.t_ref]) for s in specs]
+        self.transient = [None if s.transient_tau is None else
+                          np.exp(-np.clip(s.centres - s.conversion.hold_start, 0.0, None)
+                                  / s.transient_tau) for s in specs]
+        self.fixed = fixed
+        if fixed is not None:
+            T_all = np.concatenate([self.T_iso if iso else np.zeros(0),
+                                    self.T_cool.ravel() if cool else np.zeros(0)])
+            ok = (T_all > fixed["T_inf"]) & (T_all < fixed["Tm0"])
+            with np.errstate(all="ignore"):
+                dT = fixed["Tm0"] - T_all
+                f = 2.0 * T_all / (fixed["Tm0"] + T_all)
+                self.lnK_T = np.where(ok, -fixed["U_star"] / (_R * (T_all - fixed["T_inf"])),
+                                      -np.inf)
+                self.g_T = np.where(ok, 1.0 / (T_all * dT * f), 0.0)
+
+    def _rate(self, d):
+        """K (m, N) on the isotherm temperatures followed by the padded cooling grids."""
+        if self.fixed is None:
+            T_all = np.concatenate([self.T_iso if self.iso else np.zeros(0),
+                                    self.T_cool.ravel() if self.cool else np.zeros(0)])
+            return rate_constant(T_all, d)
+        a = d[:, 1:2] + np.log(LN2) / d[:, 0:1]
+        K = np.exp(a + self.lnK_T[None, :] - d[:, 2:3] * self.g_T[None, :])
+        return np.where(np.isfinite(K), K, 0.0)
+
+    def __call__(self, theta):
+        m = theta.shape[0]
+        d = self.model_draws(theta)
+        n = d[:, 0:1, None]
+        with np.errstate(all="ignore"):
+            K = self._rate(d) if len(self.specs) else np.zeros((m, 0))
+            n_iso = len(self.iso)
+            X = {}
+            if self.iso:
+                t0 = np.broadcast_to(self.t0_fixed, (m, n_iso)).copy()
+                if self.fit_t0.any():
+                    t0[:, self.fit_t0] = theta[:, self.t0_cols[self.fit_t0]]
+                el = np.clip(self.E[None] - t0[:, :, None], 0.0, None)
+                X["iso"] = -np.expm1(-np.power(K[:, :n_iso, None] * el, n))
+            if self.cool:
+                Kc = K[:, n_iso:].reshape(m, *self.T_cool.shape)
+                inc = 0.5 * (Kc[..., 1:] + Kc[..., :-1]) * self.dt
+                th = np.zeros_like(Kc)
+                np.cumsum(inc, axis=-1, out=th[..., 1:])
+                idx = np.broadcast_to(self.edge_idx, (m, *self.edge_idx.shape))
+                th_e = np.take_along_axis(th, idx,
+                                          axis=-1)
+                # X = 1 - exp(-theta^n) at the cell edges (Nakamura et al. 1972)
+                X["cool"] = -np.expm1(-np.power(th_e, n))
+        out = []
+        for j, s in enumerate(self.specs):
+            N = self.n_cells[j]
+            Xe = X["iso" if s.kind == "isothermal" else "cool"][:, self.pos[j], :N + 1]
+            L = s.n_linear
+            blk = np.empty((m, L, N))
+            blk[:, 0] = (Xe[:, 1:] - Xe[:, :-1]) * self.inv_width[j]
+            blk[:, 1:3] = self.fixed_cols[j]
+            col = 3
+            if s.step:
+                blk[:, col] = 0.5 * (Xe[:, 1:] + Xe[:, :-1])
+                col += 1
+            if self.transient[j] is not None:
+                blk[:, col] = self.transient[j]
+            out.append(blk)
+        return out
 
 
 @dataclass(frozen=True)

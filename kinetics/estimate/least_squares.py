@@ -164,7 +164,8 @@ def fit_least_squares(problem: FitProblem, *, x0=None, max_nfev: int | None = No
         x0 = res.x
         if problem.estimates_noise and ng > 1:
             r = y - problem.predict_full(res.x[None, :])[0]
-            sd = np.sqrt(np.bincount(groups, r * r, ng) / np.maximum(np.bincount(groups, None, ng), 1))
+            counts = np.maximum(np.bincount(groups, None, ng), 1)
+            sd = np.sqrt(np.bincount(groups, r * r, ng) / counts)
             w = np.maximum(sd, 1e-300)[groups]
     r = y - problem.predict_full(res.x[None, :])[0]
     ssr = float(np.sum(r * r))
@@ -187,7 +188,8 @@ def fit_least_squares(problem: FitProblem, *, x0=None, max_nfev: int | None = No
     stderr = np.sqrt(np.clip(np.diag(cov), 0, None))
     span = np.where(np.isfinite(hi - lo), hi - lo, 1.0)
     at_bound = tuple(n for n, v, a, b, sp in zip(problem.names, res.x, lo, hi, span, strict=True)
-                     if (np.isfinite(a) and v - a < 1e-6 * sp) or (np.isfinite(b) and b - v < 1e-6 * sp))
+                     if (np.isfinite(a) and v - a < 1e-6 * sp)
+                     or (np.isfinite(b) and b - v < 1e-6 * sp))
     return LeastSquaresResult(
         names=problem.names, x=res.x.copy(), cov=cov, stderr=stderr, noise_sd=noise_sd,
         ssr=ssr, dof=dof, success=bool(res.success), message=str(res.message),

@@ -48,6 +48,14 @@ class Diagnostics:
         Effective sample size, n_walkers * (n_steps - burn_in) / max tau.
     seconds : float
         Wall time of the sampling.
+    warmup_steps : int
+        Steps of the warm-up before the kept chain (discarded).
+    walkers_moved : int
+        Walkers that the warm-up moved from a low-probability region onto the
+        bulk of the ensemble.
+    lagging_walkers : int
+        Walkers whose mean log posterior over the kept chain stays far below the
+        rest (stuck in a poor region); non-zero means not converged.
     """
 
     converged: bool
@@ -63,6 +71,9 @@ class Diagnostics:
     ess: float
     seconds: float
     tau_factor: float
+    warmup_steps: int = 0
+    walkers_moved: int = 0
+    lagging_walkers: int = 0
 
     def as_dict(self) -> dict:
         d = dict(self.__dict__)
@@ -127,7 +138,8 @@ class Posterior:
         out = {}
         for p in self.parameters:
             if p.name in self.provenance.get("integrated_out", ()):
-                out[p.name] = ("1/sigma, integrated out analytically" if p.name.startswith("noise_sd")
+                out[p.name] = ("1/sigma, integrated out analytically"
+                               if p.name.startswith("noise_sd")
                                else "flat, integrated out analytically")
             else:
                 out[p.name] = p.prior.describe()
@@ -150,21 +162,38 @@ def _group_terms(problem: FitProblem, theta: np.ndarray):
             out.append((np.sum(rg * rg, axis=1), None, None, None))
         return out
     blocks = problem.basis(theta)
-    for B, sl in zip(blocks, problem.group_slices, strict=True):
-        yg = y[sl]
-        if sd is not None:
-            B = B / sd[sl]
-            yg = yg / sd[sl]
-        M = np.einsum("mln,mkn->mlk", B, B)
-        b = np.einsum("mln,n->ml", B, yg)
-        s = np.sqrt(np.maximum(np.einsum("mll->ml", M), 1e-300))
-        Ms = M / (s[:, :, None] * s[:, None, :]) + 1e-12 * np.eye(M.shape[1])
+    m = theta.shape[0]
+    out = [None] * len(blocks)
+    buckets: dict[int, list[int]] = {}
+    for g, B in enumerate(blocks):
+        buckets.setdefault(B.shape[1], []).append(g)
+    slices = problem.group_slices
+    for L, gs in buckets.items():
+        # groups with the same number of coefficients solved together, zero-padded in N
+        n_max = max(slices[g].stop - slices[g].start for g in gs)
+        Bs = np.zeros((m, len(gs), L, n_max))
+        Ys = np.zeros((len(gs), n_max))
+        for i, g in enumerate(gs):
+            sl = slices[g]
+            n_g = sl.stop - sl.start
+            if sd is None:
+                Bs[:, i, :, :n_g] = blocks[g]
+                Ys[i, :n_g] = y[sl]
+            else:
+                Bs[:, i, :, :n_g] = blocks[g] / sd[sl]
+                Ys[i, :n_g] = y[sl] / sd[sl]
+        M = np.einsum("mgln,mgkn->mglk", Bs, Bs)
+        b = np.einsum("mgln,gn->mgl", Bs, Ys)
+        s = np.sqrt(np.maximum(np.einsum("mgll->mgl", M), 1e-300))
+        Ms = M / (s[..., :, None] * s[..., None, :]) + 1e-12 * np.eye(L)
         bs = b / s
         sign, logdet = np.linalg.slogdet(Ms)
-        cs = np.linalg.solve(Ms, bs[:, :, None])[:, :, 0]
-        ssr = np.maximum(yg @ yg - np.sum(bs * cs, axis=1), 1e-300)
-        logdet = np.where(sign > 0, logdet + 2 * np.sum(np.log(s), axis=1), np.inf)
-        out.append((ssr, logdet, cs / s, M))
+        cs = np.linalg.solve(Ms, bs[..., None])[..., 0]
+        ssr = np.maximum(np.sum(Ys * Ys, axis=1) - np.sum(bs * cs, axis=-1), 1e-300)
+        logdet = np.where(sign > 0, logdet + 2 * np.sum(np.log(s), axis=-1), np.inf)
+        beta = cs / s
+        for i, g in enumerate(gs):
+            out[g] = (ssr[:, i], logdet[:, i], beta[:, i], M[:, i])
     return out
 
 
@@ -259,7 +288,8 @@ def conditional_draws(problem: FitProblem, theta: np.ndarray, rng, *, chunk: int
 def sample_posterior(problem: FitProblem, *, seed: int = 0, start: LeastSquaresResult | None = None,
                      n_walkers: int | None = None, max_steps: int = 20_000,
                      check_every: int = 100, tau_factor: float = 50.0, min_steps: int = 300,
-                     init_scale: float = 0.1, progress: bool | str = False) -> Posterior:
+                     init_scale: float = 0.1, progress: bool | str = False,
+                     warmup_every: int = 50, max_warmup: int = 2000) -> Posterior:
     """Sample the posterior of a problem with emcee.
 
     Parameters
@@ -283,6 +313,8 @@ def sample_posterior(problem: FitProblem, *, seed: int = 0, start: LeastSquaresR
         Initial ball radius, in least-squares standard errors.
     progress : bool or str
         Show a tqdm bar (its label when a string).
+    warmup_every, max_warmup : int
+        Warm-up rounds (steps) and their total limit; see Notes.
 
     Returns
     -------
@@ -296,8 +328,11 @@ def sample_posterior(problem: FitProblem, *, seed: int = 0, start: LeastSquaresR
     :func:`log_probability`); the sampler explores the nonlinear parameters
     and the rest is drawn from exact conditionals (:func:`conditional_draws`).  Moves: emcee's
     ``DEMove`` (90 %) mixed with ``DEMove(gamma0=1.0)`` (10 %) to let walkers
-    jump between modes.  Burn-in: 2 x max tau; thinning: max(1, min tau / 2)
-    (emcee documentation, "Saving & monitoring progress").
+    jump between modes.  A warm-up (:func:`_warm_up`, discarded) first brings
+    every walker into the bulk of the posterior.  Burn-in of the kept chain:
+    2 x max tau; thinning: max(1, min tau / 2) (emcee documentation, "Saving &
+    monitoring progress").  Walkers still far below the rest at the end are
+    left out of the draws and counted in the diagnostics.
     """
     import time
 
@@ -347,6 +382,9 @@ def sample_posterior(problem: FitProblem, *, seed: int = 0, start: LeastSquaresR
         bar = tqdm(total=max_steps, desc=progress if isinstance(progress, str) else problem.name,
                    leave=False, disable=None)
     state = emcee.State(p0, log_prob=lp0)
+    state, warm, moved = _warm_up(sampler, state, logp, lo, hi, rng, every=warmup_every,
+                                  limit=max_warmup, bar=bar)
+    sampler.reset()
     converged = False
     reason = ""
     tau = np.full(ndim, np.nan)
@@ -379,8 +417,15 @@ def sample_posterior(problem: FitProblem, *, seed: int = 0, start: LeastSquaresR
                   "treat intervals as provisional")
     burn = int(min(max(2 * tmax, 1), steps // 2))
     thin = max(1, int(0.5 * float(np.nanmin(tau))))
-    flat = sampler.get_chain(discard=burn, thin=thin, flat=True)
-    flat_lp = sampler.get_log_prob(discard=burn, thin=thin, flat=True)
+    kept_lp = sampler.get_log_prob(discard=burn, thin=thin)
+    walker_mean = kept_lp.mean(axis=0)
+    lagging = walker_mean < np.median(walker_mean) - _lag_threshold(ndim)
+    if lagging.any():
+        reason += (f"; {int(lagging.sum())} of {nw} walkers stayed in a low-probability region "
+                   "and were left out of the draws")
+    keep = ~lagging
+    flat = sampler.get_chain(discard=burn, thin=thin)[:, keep].reshape(-1, ndim)
+    flat_lp = kept_lp[:, keep].reshape(-1)
     beta, sigma = conditional_draws(problem, flat, np.random.default_rng([seed, 1]))
     noise_params = tuple(Parameter(nm, "data unit", LogUniform(1e-300, 1e300),
                                    description="noise SD (prior 1/sigma, integrated out)",
@@ -393,14 +438,76 @@ def sample_posterior(problem: FitProblem, *, seed: int = 0, start: LeastSquaresR
         n_walkers=nw, n_draws=len(flat),
         tau=dict(zip([p.name for p in params], map(float, tau), strict=True)),
         acceptance=float(np.mean(acc)), acceptance_min=float(np.min(acc)),
-        ess=float(nw * (steps - burn) / tmax), seconds=time.perf_counter() - t_start,
-        tau_factor=tau_factor)
+        ess=float(int(keep.sum()) * (steps - burn) / tmax), seconds=time.perf_counter() - t_start,
+        tau_factor=tau_factor, warmup_steps=warm, walkers_moved=moved,
+        lagging_walkers=int(lagging.sum()))
     prov = dict(problem.provenance)
     prov.update({"sampler": f"emcee {emcee.__version__} EnsembleSampler, DEMove 0.9 + "
                             "DEMove(gamma0=1) 0.1, vectorised", "seed": seed})
     prov["integrated_out"] = [p.name for p in problem.linear] + list(problem.noise_names)
     return Posterior(name=problem.name, parameters=all_params, draws=draws, log_prob=flat_lp,
                      diagnostics=diag, least_squares=lsq, seed=seed, provenance=prov)
+
+
+def _lag_threshold(ndim: int) -> float:
+    """How far (log posterior units) below the bulk a walker may sit before it counts as lost.
+
+    In the typical set of a d-dimensional Gaussian posterior, log p lies about
+    chi2_d / 2 below the mode; 0.5 chi2_d(0.999) + 2 is exceeded by few legitimate
+    walkers (our choice of level).
+    """
+    from scipy.stats import chi2
+    return float(0.5 * chi2.ppf(0.999, ndim) + 2.0)
+
+
+def _warm_up(sampler, state, logp, lo, hi, rng, *, every: int, limit: int, bar=None):
+    """Run until every walker has joined the bulk and the bulk has stopped climbing.
+
+    Walkers started near a least-squares optimum that is not the posterior mode
+    (other noise weights, another local optimum) can stay behind for thousands
+    of steps and widen the tails of every interval.  After each round of
+    ``every`` steps, walkers more than :func:`_lag_threshold` below the median
+    walker are moved onto randomly chosen walkers of the upper half (with a
+    small jitter) -
+    allowed during warm-up, whose steps are discarded.  Stops when no walker lags
+    and the median log posterior rose less than sqrt(d/2) (its spread in the
+    typical set) over the round, or after ``limit`` steps.
+
+    Returns (state, warm-up steps, walkers moved).
+    """
+    import emcee
+
+    ndim = state.coords.shape[1]
+    thr = _lag_threshold(ndim)
+    steps = moved = 0
+    prev_median = np.median(state.log_prob)
+    while steps < limit:
+        state = sampler.run_mcmc(state, every, progress=False, skip_initial_state_check=True)
+        steps += every
+        if bar is not None:
+            bar.update(every)
+        lp = state.log_prob
+        med = np.median(lp)
+        lag = lp < med - thr
+        if not lag.any() and med - prev_median < np.sqrt(ndim / 2.0):
+            break
+        prev_median = med
+        if lag.any():
+            good = np.flatnonzero(~lag)
+            coords = state.coords.copy()
+            spread = np.std(coords[good], axis=0)
+            pick = rng.choice(good, size=int(lag.sum()))
+            new = coords[pick] + 0.01 * spread * rng.standard_normal((len(pick), ndim))
+            new = np.clip(new, lo, hi)
+            lp_new = logp(new)
+            bad = ~np.isfinite(lp_new)
+            new[bad], lp_new[bad] = coords[pick[bad]], lp[pick[bad]]
+            coords[lag] = new
+            lp = lp.copy()
+            lp[lag] = lp_new
+            moved += int(lag.sum())
+            state = emcee.State(coords, log_prob=lp, random_state=state.random_state)
+    return state, steps, moved
 
 
 def _exact_linear(problem: FitProblem, lsq: LeastSquaresResult, seed: int, t0: float,

@@ -32,16 +32,23 @@ def _progress(message: str) -> None:
     click.echo(f"  {message}", err=True)
 
 
+def _quiet() -> None:
+    """Data-quality findings go to the tables and the report, not to the terminal.
+
+    Also the initializer of worker processes, which do not inherit warning filters.
+    """
+    import warnings
+
+    from kinetics.errors import DataQualityWarning
+    warnings.simplefilter("ignore", DataQualityWarning)
+    warnings.simplefilter("ignore", RuntimeWarning)
+
+
 class _Guard:
     """Turn user-input errors into one-line messages (never a traceback)."""
 
     def __enter__(self):
-        import warnings
-
-        from kinetics.errors import DataQualityWarning
-        # data-quality findings are recorded in the tables and the report
-        warnings.simplefilter("ignore", DataQualityWarning)
-        warnings.simplefilter("ignore", RuntimeWarning)
+        _quiet()
         return self
 
     def __exit__(self, exc_type, exc, tb):
@@ -59,7 +66,8 @@ def _executor(jobs: int):
         return None
     import multiprocessing as mp
     from concurrent.futures import ProcessPoolExecutor
-    return ProcessPoolExecutor(max_workers=jobs, mp_context=mp.get_context("spawn"))
+    return ProcessPoolExecutor(max_workers=jobs, mp_context=mp.get_context("spawn"),
+                               initializer=_quiet)
 
 
 def _check_file(path: Path, what: str) -> None:

@@ -90,6 +90,11 @@ def analyse_study(study: Study, *, seed: int = 0, executor=None, sample: bool = 
     res = StudyAnalysis(study=study, seed=seed, options=options)
     res.failures.extend(study.failures)
     opts = dict(study.settings.get("analysis") or {})
+    rate_on = bool(rate_model and opts.get("rate_model", True))
+    early = None
+    if rate_on and executor is not None:
+        # the longest jobs first, so both cores stay busy while the isotherms are fitted
+        early = _submit_global_early(res, opts, executor, sample, fit_options)
     cooling_job = None
     cool_runs = study.runs(kind="cooling")
     if cool_runs:
@@ -122,10 +127,10 @@ def analyse_study(study: Study, *, seed: int = 0, executor=None, sample: bool = 
         _growth(res, opts)
         _secondary(res, executor)
         _crystallinity(res)
-    if rate_model and opts.get("rate_model", True):
+    if rate_on:
         if progress:
             progress("one rate model K(T) per formulation (Nakamura-Hoffman-Lauritzen)")
-        _global(res, opts, executor, sample)
+        _global(res, opts, executor, sample, fit_options, early)
     if len(study.groups) > 1:
         _compare(res, opts)
     convs = [f.conversion for f in (res.isothermal.fits if res.isothermal else ())]
@@ -392,36 +397,82 @@ def _global_job(group, iso, cool, Tm0, T_inf, Tg, seed, study_name, sample, hold
     return group, out, None
 
 
-def _global(res: StudyAnalysis, opts: dict, executor, sample: bool) -> None:
+def _global_job_from_traces(group, iso_traces, cool_traces, iso_prep, *args):
+    """:func:`_global_job` on raw traces, prepared here exactly as the analyses prepare them.
+
+    Lets the joint fits start before the per-run analyses have finished; runs
+    whose preparation fails (reported by those analyses) are left out, as are
+    cooling runs whose event is cut off.
+    """
+    import warnings as _w
+
+    from .errors import CrystkinInputError, DataQualityWarning
+    from .prep import prepare_isothermal
+    from .prep.cooling import prepare_cooling
+
+    iso, cool = [], []
+    with _w.catch_warnings():
+        _w.simplefilter("ignore", DataQualityWarning)
+        for tr in iso_traces:
+            try:
+                iso.append((tr, prepare_isothermal(tr, **iso_prep)))
+            except CrystkinInputError:
+                continue
+        for tr in cool_traces:
+            try:
+                conv = prepare_cooling(tr)
+            except CrystkinInputError:
+                continue
+            if not conv.baseline["cut_off"]:
+                cool.append((tr, conv))
+        return _global_job(group, iso, cool, *args)
+
+
+def _global_jobs(res: StudyAnalysis, opts: dict, sample: bool, fit_options) -> list:
+    """Arguments of :func:`_global_job_from_traces`, one tuple per formulation.
+
+    Formulations that cannot have the model (no Tm0 or Tg) get a note instead.
+    """
     tg = res.study.settings.get("tg")
-    iso = {}
-    if res.isothermal:
-        for f in res.isothermal.fits:
-            iso.setdefault(f.trace.info.group, []).append((f.trace, f.conversion))
-    cool = {}
-    if res.cooling is not None:
-        by_id = {t.run_id: t for t in res.study.traces}
-        for c in res.cooling.conversions:
-            if res.cooling.used.get(c.run_id, True) and c.run_id in by_id:
-                cool.setdefault(res.cooling.groups[c.run_id], []).append((by_id[c.run_id], c))
+    iso_prep = dict((fit_options or {}).get("prep_options") or {})
     jobs = []
     for group in res.study.groups:
-        if group not in iso and group not in cool:
+        iso = [t for t in res.study.runs(kind="isothermal") if t.info.group == group]
+        cool = [t for t in res.study.runs(kind="cooling") if t.info.group == group]
+        if not iso and not cool:
             continue
         tm = _equilibrium_melting(res, group, opts)
         if tm is None or tg is None:
             res.notes.append(f"rate model K(T) ({group}) not possible: give tm0 and tg in the "
                              "[study] table of the study file")
             continue
-        jobs.append((group, iso.get(group, []), cool.get(group, []), tm[0], float(tg) - 30.0,
-                     float(tg), _seed(res.seed, f"global:{group}"), res.study.name, sample,
+        jobs.append((group, iso, cool, iso_prep, tm[0], float(tg) - 30.0, float(tg),
+                     _seed(res.seed, f"global:{group}"), res.study.name, sample,
                      tuple(opts.get("hold_out", ()))))
-    if not jobs:
-        return
-    if executor is None:
-        outcomes = [_global_job(*j) for j in jobs]
-    else:
-        outcomes = [f.result() for f in [executor.submit(_global_job, *j) for j in jobs]]
+    return jobs
+
+
+def _submit_global_early(res: StudyAnalysis, opts: dict, executor, sample: bool,
+                         fit_options) -> list | None:
+    """Submit the joint fits before the per-run work when Tm0 needs no melting analysis."""
+    if res.study.settings.get("tm0") is None or res.study.settings.get("tg") is None:
+        return None
+    return [executor.submit(_global_job_from_traces, *j)
+            for j in _global_jobs(res, opts, sample, fit_options)]
+
+
+def _global(res: StudyAnalysis, opts: dict, executor, sample: bool, fit_options=None,
+            early=None) -> None:
+    if early is None:
+        jobs = _global_jobs(res, opts, sample, fit_options)
+        if executor is None:
+            _global_collect(res, [_global_job_from_traces(*j) for j in jobs])
+            return
+        early = [executor.submit(_global_job_from_traces, *j) for j in jobs]
+    _global_collect(res, [f.result() for f in early])
+
+
+def _global_collect(res: StudyAnalysis, outcomes) -> None:
     tables, summaries, checks = [], [], []
     for group, out, note in outcomes:
         if out is None:
@@ -592,6 +643,12 @@ def write_study(analysis: StudyAnalysis, out, *, overwrite: bool = False,
         if analysis.isothermal and analysis.isothermal.fits:
             write_draws(tmp, "isothermal", {f.run_id: f.derived for f in analysis.isothermal.fits})
         analysis.figures = _write_figures(analysis, tmp)
+        stamp = {"crystkin": __version__, "seed": analysis.seed, "options": analysis.options,
+                 "study": analysis.study.name,
+                 "details": "../provenance.json (per-run priors, windows, diagnostics)"}
+        for sub in ("tables", "draws", "figures", "export"):
+            if (tmp / sub).is_dir():
+                write_json(tmp / sub / "made_by.json", stamp)
         from .report.markdown import write_reports
         prov = _provenance(analysis)
         write_reports(analysis, tmp, provenance=prov)

@@ -88,8 +88,12 @@ def test_same_seed_gives_byte_identical_tables(tmp_path, demo_study):
         r = runner.invoke(main, ["analyze", str(study), "--out", str(out), "--seed", "7",
                                  "--skip-rate-model"])
         assert r.exit_code == 0, r.output
-        outs.append((out / "tables" / "isothermal_runs.csv").read_bytes())
+        outs.append({p.relative_to(out).as_posix(): p.read_bytes()
+                     for p in sorted((out / "tables").iterdir())})
     assert outs[0] == outs[1]
+    import json
+    stamp = json.loads(outs[0]["tables/made_by.json"])
+    assert stamp["seed"] == 7 and stamp["crystkin"] and "sample" in stamp["options"]
 
 
 def test_one_bad_run_is_listed_and_others_are_analysed(tmp_path, demo_study):

@@ -78,6 +78,8 @@ def tables(draw):
            [".csv", ".txt", ".tsv", ".dat"]))
 def test_round_trip_exact(tmp_path, data, tu, Tu, qu, style, layout, meta, suffix):
     t, T, q = data
+    if Tu[1] == 0.0:
+        T = T + 273.15  # kelvin: stay above absolute zero (refused, see below)
     sep, dec = layout
 
     def fmt(x):
@@ -197,3 +199,20 @@ def test_garbage_study_file(tmp_path, text):
     with pytest.raises(CrystkinInputError) as err:
         read_study(f)
     assert "study.toml" in str(err.value)
+
+
+@PROPS
+@given(T_bad=st.floats(min_value=-1e6, max_value=0.0, allow_nan=False),
+       row=st.integers(min_value=0, max_value=19))
+def test_temperature_at_or_below_absolute_zero_is_refused_with_its_row(tmp_path, T_bad, row):
+    """A kelvin column with a value <= 0 K: one line naming the file, the row and the unit."""
+    T = np.full(20, 400.0)
+    T[row] = T_bad
+    lines = ["Time (s),Temperature (K),Heat flow (mW)"]
+    lines += [f"{i:.1f},{float(v)!r},0.5" for i, v in enumerate(T)]
+    f = tmp_path / "cold.csv"
+    f.write_text("\n".join(lines) + "\n", encoding="utf-8")
+    with pytest.raises(CrystkinInputError) as err:
+        read_trace(f)
+    msg = str(err.value)
+    assert "cold.csv" in msg and "absolute zero" in msg and f"row {row + 2}" in msg

@@ -361,3 +361,14 @@ def test_study_inputs_unchanged(project):
     before = [p.read_bytes() for p in files]
     read_study(f)
     assert [p.read_bytes() for p in files] == before
+
+
+@pytest.mark.parametrize("line, parts", [
+    ('hold_out = ["iso-12"]', [r"hold_out names run 'iso-12'", r"did you mean 'iso-125'"]),
+    ('reference = "nat"', [r"reference 'nat' is not a group", r"did you mean 'neat'",
+                           r"groups: N-A, neat"]),
+])
+def test_analysis_names_must_exist(project, line, parts):
+    """A misspelt run or group name in [analysis] is refused, not silently ignored."""
+    body = FULL.replace('    reference = "neat"\n', f"    {line}\n")
+    raises([*parts, "study.toml"], read_study, study_file(project, body))

@@ -165,6 +165,21 @@ def read_study(path) -> Study:
                 f"run name '{name}' is used by run #{seen[name]} and run #{k}; names must be "
                 "unique: set name = \"...\" in one of them", source=where)
         seen[name] = k
+    unknown = [h for h in analysis.get("hold_out", ()) if h not in seen]
+    if unknown:
+        near = difflib.get_close_matches(unknown[0], list(seen), n=1)
+        hint = f" (did you mean '{near[0]}'?)" if near else ""
+        raise CrystkinInputError(
+            f"[analysis] hold_out names run '{unknown[0]}', which is not in the study{hint}; "
+            "use the run names of the [[run]] blocks", source=where)
+    ref = analysis.get("reference")
+    groups = {plan.info.group for plan in plans}
+    if ref is not None and ref not in groups:
+        near = difflib.get_close_matches(str(ref), sorted(groups), n=1)
+        hint = f" (did you mean '{near[0]}'?)" if near else ""
+        raise CrystkinInputError(
+            f"[analysis] reference '{ref}' is not a group of this study{hint}; groups: "
+            f"{', '.join(sorted(groups))}", source=where)
 
     traces: list[Trace] = []
     failures: list[tuple[str, str]] = []

@@ -218,6 +218,8 @@ def read_trace(path, *, info: RunInfo | None = None, columns: dict | None = None
     if roles["temperature"] is not None:
         temperature = unit_of["temperature"].to_si(raw["temperature"])
         _check_kelvin_celsius_jump(temperature, row_numbers, names[roles["temperature"]], where)
+        _check_above_absolute_zero(temperature, row_numbers, names[roles["temperature"]], where,
+                                   unit_of["temperature"].symbol)
     elif info is not None and info.kind == "isothermal" and info.temperature is not None:
         temperature = np.full(n, float(info.temperature))
         extra["temperature_filled"] = True
@@ -821,6 +823,17 @@ def _check_time_unit_switch(raw, row_numbers, name, where, *, edge=5):
                     f"{factor:g}-fold here: part of the column seems to be in another unit; "
                     "export the run again with one time unit", source=where,
                     row=int(row_numbers[k + 1]), column=name)
+
+
+def _check_above_absolute_zero(temperature, row_numbers, name, where, unit):
+    """Refuse temperatures at or below 0 K (a wrong unit, or a corrupt value)."""
+    bad = np.flatnonzero(~(temperature > 0.0))
+    if bad.size:
+        k = int(bad[0])
+        raise CrystkinInputError(
+            f"temperature {temperature[k] - (273.15 if 'C' in unit else 0.0):g} {unit} is at or "
+            "below absolute zero; check the column's unit (degrees Celsius labelled as kelvin?)",
+            source=where, row=int(row_numbers[k]), column=name)
 
 
 def _check_kelvin_celsius_jump(temperature, row_numbers, name, where):

@@ -83,12 +83,32 @@ def main(argv=None):
     batch_t = time.perf_counter() - t
     rows.append((f"batch of {n_batch} runs, least squares", batch_t, "s", ""))
 
+    from kinetics.analyses.global_rate import fit_global_rate
+    from kinetics.analyses.predict import predict_from_profile
     from kinetics.demo import write_demo_study
     from kinetics.io import read_study
+    from kinetics.io.profile import constant_rate_profile
+    from kinetics.prep.cooling import prepare_cooling
     from kinetics.workflow import run_study
 
     with tempfile.TemporaryDirectory() as tmp:
         study = read_study(write_demo_study(Path(tmp) / "in", quick=args.quick))
+        group = study.groups[0]
+        iso = [(t, prepare_isothermal(t)) for t in study.runs(kind="isothermal")
+               if t.info.group == group]
+        cool = [(t, prepare_cooling(t)) for t in study.runs(kind="cooling")
+                if t.info.group == group]
+        tg = study.settings["tg"]
+        t = time.perf_counter()
+        joint = fit_global_rate(iso, cool, Tm0=study.settings["tm0"], T_inf=tg - 30.0, Tg=tg,
+                                seed=0, max_points_per_run=150)
+        joint_t = time.perf_counter() - t
+        rows.append((f"joint rate model, {len(iso)} isothermal + {len(cool)} cooling runs, "
+                     "one core", joint_t, "s", ""))
+        model = joint.simulation_model()
+        profile = constant_rate_profile(start=503.15, end=303.15, rate=10 / 60, n_points=4000)
+        predict_t, _ = _best(lambda: predict_from_profile(model, profile), repeat=3)
+        rows.append(("predict X(t) on a 4,000-point profile", predict_t, "s", "target < 1 s"))
         import multiprocessing as mp
         from concurrent.futures import ProcessPoolExecutor
         t = time.perf_counter()

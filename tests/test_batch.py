@@ -59,6 +59,21 @@ def test_cache_resumes_without_refitting(tmp_path, monkeypatch):
     pd.testing.assert_frame_equal(first, again)
 
 
+@pytest.mark.skipif(not hasattr(os, "getuid"), reason="no file owners on this platform")
+def test_cache_ignores_entries_others_could_have_written(tmp_path, monkeypatch):
+    """A cache entry (a pickle: loading it runs code) that others may write is refitted."""
+    runs = _runs(1)
+    analyse_isotherms(runs, seed=1, sample=False, cache_dir=tmp_path / "c")
+    (entry,) = (tmp_path / "c").glob("*.pkl")
+    assert (tmp_path / "c").stat().st_mode & 0o077 == 0
+    entry.chmod(0o666)
+    calls = []
+    real = iso.fit_isotherm
+    monkeypatch.setattr(iso, "fit_isotherm", lambda *a, **k: calls.append(1) or real(*a, **k))
+    analyse_isotherms(runs, seed=1, sample=False, cache_dir=tmp_path / "c")
+    assert calls == [1]
+
+
 def _cli():
     exe = Path(sys.executable).with_name("crystkin")
     return [str(exe)] if exe.exists() else [sys.executable, "-m", "crystkin_cli.main"]

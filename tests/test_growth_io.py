@@ -103,3 +103,12 @@ def test_rate_table_round_trip_to_si(tmp_path_factory, rows):
     t = read_rate_table(p)
     np.testing.assert_allclose(t.T_c, [a + 273.15 for a, _ in rows], rtol=1e-12)
     np.testing.assert_allclose(t.values, [60 * b for _, b in rows], rtol=1e-12)
+
+
+def test_oversized_table_refused_before_reading(tmp_path, monkeypatch):
+    """Size limit (lowered here so the test file stays small): one line, file named."""
+    import kinetics.io.growth as growth_io
+    monkeypatch.setattr(growth_io, "MAX_TABLE_BYTES", 2**20)
+    p = write(tmp_path, "huge.csv", "Tc (degC),t_half (min)\n" + "120,1.5\n" * 200_000)
+    with pytest.raises(CrystkinInputError, match=r"huge\.csv.*more than the limit of 1 MB"):
+        read_rate_table(p)

@@ -129,3 +129,12 @@ def test_written_then_read_gives_si_values(tmp_path_factory, steps, T0, unit):
     assert np.allclose(p.time, t * factor, rtol=1e-12)
     assert np.allclose(p.temperature, T + 273.15, rtol=1e-12)
     assert list(p.row_numbers) == list(range(2, len(t) + 2))
+
+
+def test_oversized_profile_refused_before_reading(tmp_path, monkeypatch):
+    """Size limit (lowered here so the test file stays small): one line, file named."""
+    import kinetics.io.profile as profile_io
+    monkeypatch.setattr(profile_io, "_MAX_BYTES", 2**20)
+    p = _write(tmp_path, "huge.csv", "time (s),temperature (degC)\n" + "0,230\n" * 200_000)
+    with pytest.raises(CrystkinInputError, match=r"huge\.csv.*more than the limit of 1 MB"):
+        read_profile(p)

@@ -5,6 +5,10 @@ temporary name and renamed, so a killed process never leaves a half-written
 entry.  The key hashes everything the result depends on: the run's data and
 metadata, the options, the seed and the crystkin version; change any of them and
 the run is fitted again.
+
+Loading a pickle runs code, so an entry is used only when it and its folder
+belong to the current user and nobody else may write them (the folder is made
+with mode 0700); anything else is ignored and the run fitted again.
 """
 
 from __future__ import annotations
@@ -32,13 +36,24 @@ def run_key(trace, seed: int, options: dict) -> str:
     return h.hexdigest()[:20]
 
 
+def _trusted(path: Path) -> bool:
+    """Owned by this user and writable by nobody else (always true where there are no uids)."""
+    if not hasattr(os, "getuid"):
+        return True
+    try:
+        st = path.stat()
+    except OSError:
+        return False
+    return st.st_uid == os.getuid() and not st.st_mode & 0o022
+
+
 class ResultCache:
     """A folder of pickled per-run results (None disables caching)."""
 
     def __init__(self, folder):
         self.folder = None if folder is None else Path(folder)
         if self.folder is not None:
-            self.folder.mkdir(parents=True, exist_ok=True)
+            self.folder.mkdir(mode=0o700, parents=True, exist_ok=True)
 
     def _path(self, run_id: str, key: str) -> Path:
         safe = "".join(c if c.isalnum() or c in "-_." else "_" for c in run_id)
@@ -48,7 +63,7 @@ class ResultCache:
         if self.folder is None:
             return None
         p = self._path(run_id, key)
-        if not p.exists():
+        if not p.exists() or not (_trusted(self.folder) and _trusted(p)):
             return None
         try:
             with open(p, "rb") as fh:
@@ -61,7 +76,7 @@ class ResultCache:
             return
         p = self._path(run_id, key)
         tmp = p.with_suffix(f".tmp{os.getpid()}")
-        with open(tmp, "wb") as fh:
+        with open(os.open(tmp, os.O_WRONLY | os.O_CREAT | os.O_TRUNC, 0o600), "wb") as fh:
             pickle.dump(value, fh, protocol=pickle.HIGHEST_PROTOCOL)
         os.replace(tmp, p)
 

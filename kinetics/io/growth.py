@@ -155,11 +155,22 @@ def _read_workbook(path: Path, where: str, sheet) -> pd.DataFrame:
             source=where) from None
 
 
+#: Largest growth-rate or radius table read, bytes (our choice: such tables have at most
+#: thousands of rows).
+MAX_TABLE_BYTES = 32 * 2**20
+
+
 def _load(path: Path, where: str, decimal: str | None, sheet) -> pd.DataFrame:
     if not path.exists():
         raise CrystkinInputError("file not found; check the path", source=where)
     if path.is_dir():
         raise CrystkinInputError("is a folder, not a table file", source=where)
+    size = path.stat().st_size
+    if size > MAX_TABLE_BYTES:
+        raise CrystkinInputError(
+            f"the file is {size / 2**20:.0f} MB, more than the limit of "
+            f"{MAX_TABLE_BYTES // 2**20} MB for a table of rates or radii (one row per "
+            "temperature or time); check that this is the right file", source=where)
     try:
         if path.suffix.lower() in _EXCEL:
             df = _read_workbook(path, where, sheet)

@@ -42,6 +42,7 @@ _SLASHED = re.compile(r"^(?P<name>[^/]*?[A-Za-z])\s*/\s*(?P<unit>[^/]+?)\s*$")
 _IN_UNIT = re.compile(r"^(?P<name>.*?)\s+in\s+(?P<unit>\S+)\s*$", re.IGNORECASE)
 _NUMBER = re.compile(r"^[-+]?(?:\d+(?:\.\d*)?|\.\d+)(?:[eE][-+]?\d+)?$")
 _MAX_ROWS = 2_000_000
+_MAX_BYTES = 256 * 2**20
 
 
 @dataclass(frozen=True)
@@ -219,6 +220,11 @@ def _read_text(path: Path, where: str) -> str:
         raise CrystkinInputError(
             "profiles are read from delimited text; save the sheet as CSV (columns time and "
             "temperature with units in the header)", source=where)
+    size = path.stat().st_size
+    if size > _MAX_BYTES:
+        raise CrystkinInputError(
+            f"the file is {size / 2**20:.0f} MB, more than the limit of {_MAX_BYTES // 2**20} MB "
+            f"for a profile (at most {_MAX_ROWS} rows); thin the profile", source=where)
     data = path.read_bytes()
     if data.startswith((b"\xff\xfe", b"\xfe\xff")):
         return data.decode("utf-16")

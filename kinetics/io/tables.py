@@ -177,7 +177,7 @@ def read_trace(path, *, info: RunInfo | None = None, columns: dict | None = None
     if n > max_rows:
         raise CrystkinInputError(
             f"{n} data rows, more than the limit of {max_rows}; thin the export (fewer points"
-            " per second) or raise max_rows", source=where)
+            " per second), or from Python pass a larger max_rows to read_trace", source=where)
     if n < 10:
         raise CrystkinInputError(
             f"only {n} data rows (rows {table.row_number(first)}-{table.row_number(last)});"
@@ -354,7 +354,7 @@ def _load(path: Path, where: str, *, decimal, sheet, max_rows) -> _Table:
     if size > max(max_rows, 1000) * 512:
         raise CrystkinInputError(
             f"the file is {size / 1e6:.0f} MB, too large for {max_rows} rows; thin the export"
-            " or raise max_rows", source=where)
+            ", or from Python pass a larger max_rows to read_trace", source=where)
     if suffix in EXCEL_SUFFIXES or head == b"PK\x03\x04":
         return _load_xlsx(path, where, decimal=decimal, sheet=sheet, max_rows=max_rows)
     return _load_text(path, where, decimal=decimal, max_rows=max_rows)
@@ -390,7 +390,8 @@ def _load_text(path: Path, where: str, *, decimal, max_rows) -> _Table:
     if len(lines) > max_rows + _EXTRA_LINES:
         raise CrystkinInputError(
             f"{len(lines)} lines, more than the limit of {max_rows} data rows; thin the export"
-            " (fewer points per second) or raise max_rows", source=where)
+            " (fewer points per second), or from Python pass a larger max_rows to read_trace",
+            source=where)
     longest = max(range(len(lines)), key=lambda i: len(lines[i]), default=None)
     if longest is not None and len(lines[longest]) > _MAX_LINE:
         raise CrystkinInputError(
@@ -452,7 +453,8 @@ def _load_xlsx(path: Path, where: str, *, decimal, sheet, max_rows) -> _Table:
             fh.close()
     if len(grid) > limit:
         raise CrystkinInputError(
-            f"more than {max_rows} data rows; thin the export or raise max_rows", source=where)
+            f"more than {max_rows} data rows; thin the export, or from Python pass a larger "
+            "max_rows to read_trace", source=where)
     while grid and not any(grid[-1]):
         grid.pop()
     if not grid:

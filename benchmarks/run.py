@@ -112,7 +112,8 @@ def main(argv=None):
         import multiprocessing as mp
         from concurrent.futures import ProcessPoolExecutor
         t = time.perf_counter()
-        with ProcessPoolExecutor(2, mp_context=mp.get_context("spawn")) as ex:
+        with ProcessPoolExecutor(2, mp_context=mp.get_context("spawn"),
+                                 initializer=warnings.simplefilter, initargs=("ignore",)) as ex:
             run_study(study, Path(tmp) / "out", executor=ex)
         demo_t = time.perf_counter() - t
     rows.append((f"demo study end to end, 2 processes ({len(study.traces)} runs)", demo_t, "s",

@@ -61,13 +61,43 @@ class _Guard:
         return False
 
 
-def _executor(jobs: int):
-    if jobs <= 1:
-        return None
-    import multiprocessing as mp
-    from concurrent.futures import ProcessPoolExecutor
-    return ProcessPoolExecutor(max_workers=jobs, mp_context=mp.get_context("spawn"),
-                               initializer=_quiet)
+def _executor(jobs: int, cluster: str | None = None):
+    """(executor or None, cleanup): local processes, or a Dask cluster's executor."""
+    if cluster is None:
+        if jobs <= 1:
+            return None, lambda: None
+        import multiprocessing as mp
+        from concurrent.futures import ProcessPoolExecutor
+        ex = ProcessPoolExecutor(max_workers=jobs, mp_context=mp.get_context("spawn"),
+                                 initializer=_quiet)
+        return ex, ex.shutdown
+    try:
+        from dask.distributed import Client, LocalCluster
+    except ImportError:
+        _fail("--cluster needs the optional Dask extra: pip install 'crystkin[cluster]'")
+    local = None
+    try:
+        if cluster == "local":
+            local = LocalCluster(n_workers=jobs, threads_per_worker=1, processes=True,
+                                 dashboard_address=None)
+            client = Client(local)
+        else:
+            client = Client(cluster, timeout="10s")
+    except (OSError, TimeoutError, ValueError) as exc:
+        if local is not None:
+            local.close()
+        _fail(f"cannot reach the Dask scheduler at {cluster} ({exc}); check the address "
+              "(tcp://host:8786) or use --cluster local")
+    client.run(_quiet)
+    click.echo(f"crystkin: fitting on the Dask cluster {client.scheduler.address} "
+               f"({len(client.scheduler_info()['workers'])} workers)", err=True)
+
+    def cleanup():
+        client.close()
+        if local is not None:
+            local.close()
+
+    return client.get_executor(pure=False), cleanup
 
 
 def _check_file(path: Path, what: str) -> None:
@@ -121,6 +151,10 @@ def _common(f):
                      help="Seed of every random choice (same seed, same numbers).")(f)
     f = click.option("--jobs", default=1, show_default=True, type=click.IntRange(1, 64),
                      help="Runs fitted in parallel processes.")(f)
+    f = click.option("--cluster", default=None, metavar="ADDRESS",
+                     help="Fit on a Dask cluster: its scheduler address (tcp://host:8786), or "
+                          "'local' for a local one with --jobs workers. Needs the optional "
+                          "extra crystkin[cluster]; results are identical to local runs.")(f)
     f = click.option("--overwrite", is_flag=True,
                      help="Replace an existing output folder written by crystkin.")(f)
     f = click.option("--fast", is_flag=True,
@@ -136,7 +170,7 @@ def _common(f):
               show_default=True, help="Output folder (created; must not exist unless --overwrite).")
 @click.option("--quick", is_flag=True, help="A smaller demo study (fewer runs).")
 @_common
-def demo(out, quick, seed, jobs, overwrite, fast, skip_rate_model):
+def demo(out, quick, seed, jobs, cluster, overwrite, fast, skip_rate_model):
     """Generate the built-in INVENTED demo study and analyse it end to end."""
     with _Guard():
         import tempfile
@@ -152,13 +186,12 @@ def demo(out, quick, seed, jobs, overwrite, fast, skip_rate_model):
             study_file = write_demo_study(Path(tmp) / "input", seed=seed, quick=quick)
             study = read_study(study_file)
             click.echo(f"  {len(study.traces)} runs generated; fitting...", err=True)
-            ex = _executor(jobs)
+            ex, cleanup = _executor(jobs, cluster)
             try:
                 analysis = analyse_study(study, seed=seed, executor=ex, sample=not fast,
                                          progress=_progress, rate_model=not skip_rate_model)
             finally:
-                if ex is not None:
-                    ex.shutdown()
+                cleanup()
 
             def copy_inputs(dest):
                 import shutil
@@ -173,7 +206,7 @@ def demo(out, quick, seed, jobs, overwrite, fast, skip_rate_model):
 @click.option("--out", type=click.Path(path_type=Path), required=True,
               help="Output folder (created; must not exist unless --overwrite).")
 @_common
-def analyze(study_file, out, seed, jobs, overwrite, fast, skip_rate_model):
+def analyze(study_file, out, seed, jobs, cluster, overwrite, fast, skip_rate_model):
     """Analyse every run of a study file (TOML) and write tables, figures and a report."""
     with _Guard():
         from kinetics.io import read_study
@@ -187,14 +220,13 @@ def analyze(study_file, out, seed, jobs, overwrite, fast, skip_rate_model):
         cache = resume_folder(out)
         if cache.exists():
             click.echo(f"crystkin: resuming an interrupted analysis ({cache})", err=True)
-        ex = _executor(jobs)
+        ex, cleanup = _executor(jobs, cluster)
         try:
             analysis = analyse_study(study, seed=seed, executor=ex, sample=not fast,
                                      progress=_progress, cache_dir=cache,
                                      rate_model=not skip_rate_model)
         finally:
-            if ex is not None:
-                ex.shutdown()
+            cleanup()
         write_study(analysis, out, overwrite=overwrite)
         import shutil
         shutil.rmtree(cache, ignore_errors=True)

@@ -108,3 +108,33 @@ def test_killed_batch_restarts_with_same_tables(tmp_path):
     assert (out / "tables" / "isothermal_runs.csv").read_bytes() == \
         (ref / "tables" / "isothermal_runs.csv").read_bytes()
     assert not resume.parent.exists()
+
+
+def test_cli_on_a_local_dask_cluster_writes_the_same_tables(tmp_path):
+    """`--cluster local` (Dask worker processes) against one local process: every table of
+    the whole workflow (isotherms, cooling job, joint rate models, comparisons) is
+    byte-identical."""
+    pytest.importorskip("distributed")
+    study = write_demo_study(tmp_path / "in", quick=True)
+    outs = {}
+    for name, extra in (("serial", []), ("dask", ["--cluster", "local", "--jobs", "2"])):
+        out = tmp_path / name
+        r = subprocess.run([*_cli(), "analyze", str(study), "--out", str(out), "--fast",
+                            "--seed", "4", *extra], capture_output=True, text=True, timeout=600)
+        assert r.returncode == 0, r.stderr
+        outs[name] = {p.name: p.read_bytes() for p in sorted((out / "tables").glob("*.csv"))}
+    assert "global_rate.csv" in outs["serial"]
+    assert outs["serial"].keys() == outs["dask"].keys()
+    for name in outs["serial"]:
+        assert outs["serial"][name] == outs["dask"][name], name
+
+
+def test_cli_cluster_address_unreachable_is_one_line(tmp_path):
+    pytest.importorskip("distributed")
+    study = write_demo_study(tmp_path / "in", quick=True)
+    r = subprocess.run([*_cli(), "analyze", str(study), "--out", str(tmp_path / "o"),
+                        "--cluster", "tcp://127.0.0.1:9"], capture_output=True, text=True,
+                       timeout=120)
+    assert r.returncode == 2, r.stderr
+    assert "cannot reach the Dask scheduler" in r.stderr and "Traceback" not in r.stderr
+    assert not (tmp_path / "o").exists()

@@ -1481,8 +1481,8 @@ def _rate_curve_rows(rc: RateCurves, reference, groups, n_draws, seed, call_p, d
         else:
             text = (f"{head} at {_fmt_T(T[0])} °C: the rate ratio is {v0} (95 % interval {i0}; "
                     f"probability faster {format_probability(_prob(ratio[:, 0] - 1))}).")
-        text += (" These intervals come from the rate model's posterior; run-to-run scatter "
-                 "enters only as far as that model carries it.")
+        text += (" These intervals come from the rate models' posteriors, which include the "
+                 "run-to-run scatter each model estimates from its runs (when it has 3 or more).")
         paragraphs.append(text)
     rank = _rank_from_scores(scores, reference, basis="rate model K(T)", measure=
                              "geometric-mean K ratio over the grid", transform=np.exp,

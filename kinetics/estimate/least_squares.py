@@ -144,8 +144,13 @@ def fit_least_squares(problem: FitProblem, *, x0=None, max_nfev: int | None = No
     else:
         w = np.broadcast_to(np.asarray(problem.noise, dtype=float), y.shape)
 
+    p_nl = len(problem.parameters)
+    pen = problem.prior_residuals
+
     def fun(x):
         r = (y - problem.predict_full(x[None, :])[0]) / w
+        if pen is not None:
+            r = np.concatenate([r, pen(x[None, :p_nl])[0]])
         return np.where(np.isfinite(r), r, 1e150)
 
     def jac(x):
@@ -154,6 +159,9 @@ def fit_least_squares(problem: FitProblem, *, x0=None, max_nfev: int | None = No
         X = np.vstack([x, x + np.diag(h)])
         mu = problem.predict_full(X)
         J = -(mu[1:] - mu[0]) / h[:, None] / w[None, :]
+        if pen is not None:
+            pr = pen(X[:, :p_nl])
+            J = np.concatenate([J, (pr[1:] - pr[0]) / h[:, None]], axis=1)
         return np.where(np.isfinite(J), J, 0.0).T
 
     passes = 3 if (problem.estimates_noise and ng > 1) else 1

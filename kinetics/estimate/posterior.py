@@ -219,6 +219,10 @@ def log_probability(problem: FitProblem):
         lp = np.zeros(theta.shape[0])
         for j, par in enumerate(params):
             lp = lp + par.prior.logpdf(theta[:, j])
+        if problem.log_prior is not None:
+            ok = np.isfinite(lp)
+            with np.errstate(all="ignore"):
+                lp[ok] = lp[ok] + problem.log_prior(theta[ok])
         ok = np.isfinite(lp)
         out = np.full(theta.shape[0], -np.inf)
         if not ok.any():
@@ -398,7 +402,7 @@ def sample_posterior(problem: FitProblem, *, seed: int = 0, start: LeastSquaresR
         if steps < min_steps:
             continue
         chain = sampler.get_chain()
-        tau = emcee.autocorr.integrated_time(chain[steps // 5:], c=5, tol=0, quiet=True)
+        tau = _autocorr_time(chain[steps // 5:], tau)
         tmax = float(np.nanmax(tau)) if np.all(np.isfinite(tau)) else np.inf
         if steps >= tau_factor * tmax:
             converged = True
@@ -447,6 +451,17 @@ def sample_posterior(problem: FitProblem, *, seed: int = 0, start: LeastSquaresR
     prov["integrated_out"] = [p.name for p in problem.linear] + list(problem.noise_names)
     return Posterior(name=problem.name, parameters=all_params, draws=draws, log_prob=flat_lp,
                      diagnostics=diag, least_squares=lsq, seed=seed, provenance=prov)
+
+
+def _autocorr_time(chain: np.ndarray, previous: np.ndarray) -> np.ndarray:
+    """emcee's integrated autocorrelation time, on a chain thinned to ~10 points per
+    previous tau (the check runs every few hundred steps; a full-length transform of a
+    long chain in many dimensions would cost a fifth of the sampling)."""
+    import emcee
+
+    prev = float(np.nanmin(previous)) if np.all(np.isfinite(previous)) else 0.0
+    k = max(1, int(prev / 10.0))
+    return k * emcee.autocorr.integrated_time(chain[::k], c=5, tol=0, quiet=True)
 
 
 def _lag_threshold(ndim: int) -> float:

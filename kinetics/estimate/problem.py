@@ -55,6 +55,15 @@ class FitProblem:
     noise : "estimate", float or array of shape (N,)
     noise_groups : array of int, shape (N,), optional
         Group index of each datum, non-decreasing; default one group.
+    log_prior : callable, optional
+        ``log_prior(theta (m, p)) -> (m,)``: a joint log prior density added to
+        the parameters' own priors (for hierarchical priors, where one parameter
+        sets the spread of others).
+    prior_residuals : callable, optional
+        ``prior_residuals(theta (m, p)) -> (m, k)``: a Gaussian stand-in for
+        ``log_prior`` that least squares appends to its residuals (which
+        otherwise ignore priors), so that it is not left with a direction the
+        data alone do not fix.
     provenance : dict
     """
 
@@ -67,6 +76,8 @@ class FitProblem:
     linear_groups: tuple[int, ...] | None = None
     noise: str | float | np.ndarray = "estimate"
     noise_groups: np.ndarray | None = None
+    log_prior: Callable[[np.ndarray], np.ndarray] | None = None
+    prior_residuals: Callable[[np.ndarray], np.ndarray] | None = None
     provenance: dict = field(default_factory=dict)
 
     def __post_init__(self):

@@ -372,11 +372,15 @@ METHODS = (
      "X(t) = 1 − exp[−(∫ K(T(s)) ds)^n];   K(T) = (ln 2)^(1/n) / t½(T);   "
      "1/t½ = (1/t½)0 exp[−U* / (R (T − T∞))] exp[−Kg / (T ΔT f)]",
      "Fitted to the heat-flow signals of isothermal and cooling runs together; each run's "
-     "area, baseline and noise level are integrated out.",
+     "area, baseline and noise level are integrated out. Each run's rate may differ from the "
+     "common K(T) by a factor exp(u), u ~ N(0, s²), with the run-to-run SD s estimated "
+     "(3 or more runs), so that the intervals carry the scatter between repeated runs.",
      ("Nakamura, Watanabe, Katayama & Amano, J. Appl. Polym. Sci. 16 (1972) 1077 (from "
       "memory)",
       "Patel & Spruiell, Polym. Eng. Sci. 31 (1991) 730 (from memory)",
-      "Hoffman & Miller, Polymer 38 (1997) 3151 (from memory)")),
+      "Hoffman & Miller, Polymer 38 (1997) 3151 (from memory)",
+      "Gelman et al., Bayesian Data Analysis, 3rd ed. (2013), section 5.4, the hierarchical "
+      "normal model (from memory)")),
     ("prediction", ("prediction*",), "Prediction on a temperature profile",
      "X(t) from the rate model for every posterior draw;   t(X*) = first time X ≥ X*",
      "Median and 95 % band of X(t); a target not reached before the glass transition or the "

@@ -91,18 +91,18 @@ def analyse_study(study: Study, *, seed: int = 0, executor=None, sample: bool = 
     res.failures.extend(study.failures)
     opts = dict(study.settings.get("analysis") or {})
     rate_on = bool(rate_model and opts.get("rate_model", True))
+    jobs = _JobCache(cache_dir)
     early = None
     if rate_on and executor is not None:
         # the longest jobs first, so both cores stay busy while the isotherms are fitted
-        early = _submit_global_early(res, opts, executor, sample, fit_options)
+        early = _submit_global_early(res, opts, executor, sample, fit_options, jobs)
     cooling_job = None
     cool_runs = study.runs(kind="cooling")
     if cool_runs:
         if progress:
             progress(f"cooling runs ({len(cool_runs)}): Jeziorny, Ozawa, Mo, Friedman, Vyazovkin")
         args = (cool_runs, seed, bool(opts.get("kissinger", False)))
-        cooling_job = (executor.submit(_cooling_job, *args) if executor is not None
-                       else _cooling_job(*args))
+        cooling_job = jobs.run("cooling", _cooling_job, args, executor)
     iso = study.runs(kind="isothermal")
     if iso:
         def tick(run_id, done, total):
@@ -117,8 +117,7 @@ def analyse_study(study: Study, *, seed: int = 0, executor=None, sample: bool = 
         res.tables["isothermal_runs"] = batch.table()
         res.tables["isothermal_posterior"] = posterior_table(batch.fits)
     if cooling_job is not None:
-        _cooling_collect(res, cooling_job.result() if hasattr(cooling_job, "result")
-                         else cooling_job)
+        _cooling_collect(res, cooling_job.result())
     if study.runs(kind="heating"):
         _melting(res)
     if res.isothermal and res.isothermal.fits:
@@ -130,7 +129,7 @@ def analyse_study(study: Study, *, seed: int = 0, executor=None, sample: bool = 
     if rate_on:
         if progress:
             progress("one rate model K(T) per formulation (Nakamura-Hoffman-Lauritzen)")
-        _global(res, opts, executor, sample, fit_options, early)
+        _global(res, opts, executor, sample, fit_options, early, jobs)
     if len(study.groups) > 1:
         _compare(res, opts)
     convs = [f.conversion for f in (res.isothermal.fits if res.isothermal else ())]
@@ -453,23 +452,93 @@ def _global_jobs(res: StudyAnalysis, opts: dict, sample: bool, fit_options) -> l
 
 
 def _submit_global_early(res: StudyAnalysis, opts: dict, executor, sample: bool,
-                         fit_options) -> list | None:
+                         fit_options, cache) -> list | None:
     """Submit the joint fits before the per-run work when Tm0 needs no melting analysis."""
     if res.study.settings.get("tm0") is None or res.study.settings.get("tg") is None:
         return None
-    return [executor.submit(_global_job_from_traces, *j)
+    return _submit_global(res, opts, executor, sample, fit_options, cache)
+
+
+def _submit_global(res, opts, executor, sample, fit_options, cache) -> list:
+    return [cache.run(f"rate_model_{j[0]}", _global_job_from_traces, j, executor)
             for j in _global_jobs(res, opts, sample, fit_options)]
 
 
 def _global(res: StudyAnalysis, opts: dict, executor, sample: bool, fit_options=None,
-            early=None) -> None:
+            early=None, cache=None) -> None:
     if early is None:
-        jobs = _global_jobs(res, opts, sample, fit_options)
-        if executor is None:
-            _global_collect(res, [_global_job_from_traces(*j) for j in jobs])
-            return
-        early = [executor.submit(_global_job_from_traces, *j) for j in jobs]
+        early = _submit_global(res, opts, executor, sample, fit_options,
+                               cache or _JobCache(None))
     _global_collect(res, [f.result() for f in early])
+
+
+class _JobCache:
+    """Study-level jobs (cooling analysis, joint rate models) kept for a resume, like the
+    per-run fits: an interrupted analysis restarted with the same inputs and options
+    does not redo the ones that finished."""
+
+    def __init__(self, folder):
+        from .analyses.cache import ResultCache
+        self.cache = ResultCache(None if folder is None else Path(folder) / "jobs")
+
+    def run(self, label: str, fn, args: tuple, executor):
+        """An object with ``result()``: the kept outcome, or ``fn(*args)`` run now or
+        submitted to ``executor`` (kept when it finishes)."""
+        key = _job_key(args)
+        hit = self.cache.get(label, key)
+        if hit is not None:
+            return _Done(hit)
+        if executor is None:
+            value = fn(*args)
+            self.cache.put(label, key, value)
+            return _Done(value)
+        return _Pending(executor.submit(fn, *args), lambda v: self.cache.put(label, key, v))
+
+
+class _Done:
+    def __init__(self, value):
+        self.value = value
+
+    def result(self):
+        return self.value
+
+
+class _Pending:
+    def __init__(self, future, keep):
+        self.future, self.keep, self.done = future, keep, False
+
+    def result(self):
+        value = self.future.result()
+        if not self.done:
+            self.keep(value)
+            self.done = True
+        return value
+
+
+def _job_key(args) -> str:
+    """Digest of a job's arguments: traces by their data (see run_key), the rest by repr."""
+    import hashlib
+
+    from .analyses.cache import run_key
+    from .dataset import Trace
+
+    h = hashlib.sha256(__version__.encode())
+
+    def feed(a):
+        if isinstance(a, Trace):
+            h.update(run_key(a, 0, {}).encode())
+        elif isinstance(a, (list, tuple)):
+            h.update(b"(")
+            for b in a:
+                feed(b)
+            h.update(b")")
+        elif isinstance(a, dict):
+            feed(sorted(a.items(), key=lambda kv: str(kv[0])))
+        else:
+            h.update(repr(a).encode())
+
+    feed(args)
+    return h.hexdigest()[:20]
 
 
 def _global_collect(res: StudyAnalysis, outcomes) -> None:

@@ -138,3 +138,28 @@ def test_cli_cluster_address_unreachable_is_one_line(tmp_path):
     assert r.returncode == 2, r.stderr
     assert "cannot reach the Dask scheduler" in r.stderr and "Traceback" not in r.stderr
     assert not (tmp_path / "o").exists()
+
+
+def test_resume_keeps_the_cooling_analysis_and_rate_models(tmp_path, monkeypatch):
+    """A second analysis with the same resume folder takes the cooling analysis and the
+    joint rate models from it (both are boobytrapped) and gives the same tables."""
+    import warnings
+
+    from kinetics import workflow
+    from kinetics.analyses import global_rate, nonisothermal
+    from kinetics.io import read_study
+
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        study = read_study(write_demo_study(tmp_path / "in", quick=True))
+        first = workflow.analyse_study(study, seed=3, sample=False, cache_dir=tmp_path / "c")
+
+        def boom(*a, **k):
+            raise AssertionError("a finished study-level job was run again")
+
+        monkeypatch.setattr(global_rate, "fit_global_rate", boom)
+        monkeypatch.setattr(nonisothermal, "analyse_cooling", boom)
+        again = workflow.analyse_study(study, seed=3, sample=False, cache_dir=tmp_path / "c")
+    assert "global_rate" in first.tables and "cooling_runs" in first.tables
+    for name, df in first.tables.items():
+        pd.testing.assert_frame_equal(df, again.tables[name], obj=name)

@@ -100,6 +100,13 @@ def _executor(jobs: int, cluster: str | None = None):
     return client.get_executor(pure=False), cleanup
 
 
+def _local(executor):
+    """The executor when it is this machine's processes (figures are rendered there); None
+    for a cluster, whose workers may lack the fonts that make figures byte-identical."""
+    from concurrent.futures import ProcessPoolExecutor
+    return executor if isinstance(executor, ProcessPoolExecutor) else None
+
+
 def _check_file(path: Path, what: str) -> None:
     if not path.exists():
         _fail(f"{path}: {what} not found; check the path")
@@ -175,7 +182,7 @@ def demo(out, quick, seed, jobs, cluster, overwrite, fast, skip_rate_model):
     with _Guard():
         import tempfile
 
-        from kinetics.demo import write_demo_study
+        from kinetics.demo import relabel_sources, write_demo_study
         from kinetics.io import read_study
         from kinetics.workflow import analyse_study, write_study
 
@@ -184,20 +191,21 @@ def demo(out, quick, seed, jobs, cluster, overwrite, fast, skip_rate_model):
         _check_out(out, overwrite)
         with tempfile.TemporaryDirectory(prefix="crystkin-demo-") as tmp:
             study_file = write_demo_study(Path(tmp) / "input", seed=seed, quick=quick)
-            study = read_study(study_file)
+            study = relabel_sources(read_study(study_file), Path(tmp) / "input")
             click.echo(f"  {len(study.traces)} runs generated; fitting...", err=True)
+            def copy_inputs(dest):
+                import shutil
+                shutil.copytree(Path(tmp) / "input", dest)
+
             ex, cleanup = _executor(jobs, cluster)
             try:
                 analysis = analyse_study(study, seed=seed, executor=ex, sample=not fast,
                                          progress=_progress, rate_model=not skip_rate_model)
+                _progress("writing tables, figures and the report")
+                write_study(analysis, out, overwrite=overwrite,
+                            extra_files={"demo_input": copy_inputs}, executor=_local(ex))
             finally:
                 cleanup()
-
-            def copy_inputs(dest):
-                import shutil
-                shutil.copytree(Path(tmp) / "input", dest)
-            write_study(analysis, out, overwrite=overwrite,
-                        extra_files={"demo_input": copy_inputs})
         _finish(analysis, out)
 
 
@@ -225,9 +233,10 @@ def analyze(study_file, out, seed, jobs, cluster, overwrite, fast, skip_rate_mod
             analysis = analyse_study(study, seed=seed, executor=ex, sample=not fast,
                                      progress=_progress, cache_dir=cache,
                                      rate_model=not skip_rate_model)
+            _progress("writing tables, figures and the report")
+            write_study(analysis, out, overwrite=overwrite, executor=_local(ex))
         finally:
             cleanup()
-        write_study(analysis, out, overwrite=overwrite)
         import shutil
         shutil.rmtree(cache, ignore_errors=True)
         _finish(analysis, out)

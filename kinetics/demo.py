@@ -231,3 +231,26 @@ def demo_truth() -> dict:
             "groups": {g.group: {"n": g.n, "t_half_ref_s": g.t_half_ref,
                                  "K_ref_per_s": LN2 ** (1 / g.n) / g.t_half_ref}
                        for g in DEMO_GROUPS}}
+
+
+def relabel_sources(study, root, label: str = "demo_input"):
+    """The study with file paths under ``root`` written as ``label/<path below root>``.
+
+    The demo is generated in a temporary folder and copied into the output as
+    ``demo_input/``; tables and provenance then name files where the user finds
+    them, and the same seed gives the same bytes.
+    """
+    from dataclasses import replace
+    from pathlib import Path
+
+    root = Path(root)
+
+    def rel(path: str) -> str:
+        try:
+            return f"{label}/{Path(path).relative_to(root).as_posix()}"
+        except ValueError:
+            return path
+
+    traces = tuple(replace(t, info=replace(t.info, source=rel(t.info.source)))
+                   if t.info.source else t for t in study.traces)
+    return replace(study, traces=traces, source=rel(study.source) if study.source else "")

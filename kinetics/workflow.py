@@ -592,17 +592,40 @@ def _compare(res: StudyAnalysis, opts: dict) -> None:
     res.notes.extend(cmp_.warnings)
 
 
-def _write_figures(analysis: StudyAnalysis, out: Path) -> list[FigureFile]:
+def _write_figures(analysis: StudyAnalysis, out: Path, executor=None) -> list[FigureFile]:
+    import pickle
+
+    from .io.writers import safe_child
     from .report import figures
-    from .report.style import save
+    from .report.style import render, render_pickled
 
     folder = out / "figures"
     folder.mkdir(exist_ok=True)
     written: list[FigureFile] = []
+    pending = []
 
     def put(section, fig, name, caption):
-        save(fig, folder / name)
         written.append(FigureFile(section, name, caption))
+        if executor is not None:
+            try:
+                data = pickle.dumps(fig)
+            except (pickle.PicklingError, TypeError, AttributeError):
+                data = None
+            if data is not None:
+                pending.append((name, executor.submit(render_pickled, data)))
+                return
+        pending.append((name, _Done(render(fig))))
+
+    try:
+        _draw_figures(analysis, put, figures)
+    finally:
+        for name, job in pending:
+            safe_child(folder, name).write_bytes(job.result())
+    return written
+
+
+def _draw_figures(analysis: StudyAnalysis, put, figures) -> None:
+    """Build every figure of the analysis and hand it to ``put(section, fig, name, caption)``."""
 
     batch = analysis.isothermal
     if batch and batch.fits:
@@ -669,7 +692,6 @@ def _write_figures(analysis: StudyAnalysis, out: Path) -> list[FigureFile]:
         }
         for name, fig in comparison_figures(analysis.comparison).items():
             put("compare", fig, f"compare_{name}.png", texts.get(name, name.replace("_", " ")))
-    return written
 
 
 def _safely(analysis: StudyAnalysis, what: str, make):
@@ -691,8 +713,11 @@ def _safe_stem(text: str) -> str:
 
 
 def write_study(analysis: StudyAnalysis, out, *, overwrite: bool = False,
-                protect=(), extra_files: dict | None = None) -> Path:
-    """Write tables, draws, figures, report and provenance into ``out`` atomically."""
+                protect=(), extra_files: dict | None = None, executor=None) -> Path:
+    """Write tables, draws, figures, report and provenance into ``out`` atomically.
+
+    ``executor`` (optional) renders the figures in parallel; the files are the same.
+    """
     out = Path(out)
     protect = list(protect) + [t.info.source for t in analysis.study.traces if t.info.source]
     if analysis.study.source:
@@ -711,7 +736,7 @@ def write_study(analysis: StudyAnalysis, out, *, overwrite: bool = False,
                                        study_name=analysis.study.name)
         if analysis.isothermal and analysis.isothermal.fits:
             write_draws(tmp, "isothermal", {f.run_id: f.derived for f in analysis.isothermal.fits})
-        analysis.figures = _write_figures(analysis, tmp)
+        analysis.figures = _write_figures(analysis, tmp, executor)
         stamp = {"crystkin": __version__, "seed": analysis.seed, "options": analysis.options,
                  "study": analysis.study.name,
                  "details": "../provenance.json (per-run priors, windows, diagnostics)"}

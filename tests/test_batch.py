@@ -163,3 +163,22 @@ def test_resume_keeps_the_cooling_analysis_and_rate_models(tmp_path, monkeypatch
     assert "global_rate" in first.tables and "cooling_runs" in first.tables
     for name, df in first.tables.items():
         pd.testing.assert_frame_equal(df, again.tables[name], obj=name)
+
+
+def test_demo_outputs_identical_on_one_and_two_processes(tmp_path):
+    """Tables, figures (rendered in worker processes with --jobs 2), draws and exports are
+    byte-identical; only the run time in the report and provenance differs."""
+    outs = {}
+    for name, extra in (("one", []), ("two", ["--jobs", "2"])):
+        out = tmp_path / name
+        r = subprocess.run([*_cli(), "demo", "--quick", "--fast", "--out", str(out), *extra],
+                           capture_output=True, text=True, timeout=600)
+        assert r.returncode == 0, r.stderr
+        outs[name] = {p.relative_to(out).as_posix(): p.read_bytes()
+                      for p in sorted(out.rglob("*")) if p.is_file()}
+    timed = {"provenance.json", "report.html", "report.md"}
+    assert outs["one"].keys() == outs["two"].keys()
+    assert any(k.startswith("figures/") for k in outs["one"])
+    for name in outs["one"].keys() - timed:
+        assert outs["one"][name] == outs["two"][name], name
+    assert b"crystkin-demo-" not in outs["one"]["tables/preparation.csv"]  # no temp paths

@@ -687,7 +687,7 @@ class GlobalRateResult:
                "diagnostics": (None if self.posterior is None else
                                {k: v for k, v in self.posterior.diagnostics.as_dict().items()
                                 if k in ("converged", "reason", "n_steps", "ess", "acceptance",
-                                         "tau_max", "seconds")}),
+                                         "tau_max")}),
                "n_posterior_draws": int(S), "n_exported_draws": int(len(idx))}
         return SimulationModel(
             draws=self.model_draws[idx], parameters=params, validity=dict(self.validity),

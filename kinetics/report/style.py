@@ -39,11 +39,28 @@ def new_figure(width=6.0, height=4.0, ncols=1, nrows=1):
 
 def save(fig, path, *, fmt=None):
     """Save byte-stable (no software or date metadata)."""
-    import matplotlib
-
     path = str(path)
     fmt = fmt or path.rsplit(".", 1)[-1]
-    meta = {"png": {"Software": None}, "svg": {"Date": None}, "pdf": {"CreationDate": None}}
-    with matplotlib.rc_context(RC):
-        fig.savefig(path, format=fmt, metadata=meta.get(fmt))
+    with open(path, "wb") as fh:
+        fh.write(render(fig, fmt))
     return path
+
+
+def render(fig, fmt: str = "png") -> bytes:
+    """The figure as file bytes, byte-stable (no software or date metadata)."""
+    import io
+
+    import matplotlib
+
+    meta = {"png": {"Software": None}, "svg": {"Date": None}, "pdf": {"CreationDate": None}}
+    buf = io.BytesIO()
+    with matplotlib.rc_context(RC):
+        fig.savefig(buf, format=fmt, metadata=meta.get(fmt))
+    return buf.getvalue()
+
+
+def render_pickled(data: bytes, fmt: str = "png") -> bytes:
+    """:func:`render` of a pickled figure (module level, for worker processes)."""
+    import pickle
+
+    return render(pickle.loads(data), fmt)

@@ -89,7 +89,7 @@ def main(argv=None):
     from kinetics.io import read_study
     from kinetics.io.profile import constant_rate_profile
     from kinetics.prep.cooling import prepare_cooling
-    from kinetics.workflow import run_study
+    from kinetics.workflow import analyse_study, write_study
 
     with tempfile.TemporaryDirectory() as tmp:
         study = read_study(write_demo_study(Path(tmp) / "in", quick=args.quick))
@@ -114,7 +114,7 @@ def main(argv=None):
         t = time.perf_counter()
         with ProcessPoolExecutor(2, mp_context=mp.get_context("spawn"),
                                  initializer=warnings.simplefilter, initargs=("ignore",)) as ex:
-            run_study(study, Path(tmp) / "out", executor=ex)
+            write_study(analyse_study(study, executor=ex), Path(tmp) / "out", executor=ex)
         demo_t = time.perf_counter() - t
     rows.append((f"demo study end to end, 2 processes ({len(study.traces)} runs)", demo_t, "s",
                  "target < 60 s"))

@@ -231,3 +231,25 @@ def test_run_to_run_scatter_is_estimated_and_carried():
     assert "run_scatter_sd" in set(r.summary()["parameter"])
     assert r.simulation_model().provenance["fit"]["run_to_run_sd_lnK"]["median"] == \
         pytest.approx(sd[1])
+
+
+def test_constant_under_a_prior_gives_the_same_basis_as_fixed(study):
+    """The batched basis has a shortcut for fixed U*, T_inf, Tm0; with Tm0 under a Normal
+    prior the general path must give the same heat-flow basis at the same Tm0."""
+    from kinetics.models.params import Normal
+
+    iso, cool = study
+    r = fit_global_rate(iso, [(t, c) for t, c, _ in cool], sample=False,
+                        max_points_per_run=80, **CONST)
+    specs = list(r.specs)
+    fixed = global_rate_problem(specs, T_ref=r.T_ref, **CONST, run_scatter=True)
+    loose = global_rate_problem(specs, T_ref=r.T_ref, U_star=CONST["U_star"],
+                                T_inf=CONST["T_inf"], run_scatter=True,
+                                Tm0=Normal(CONST["Tm0"], 2.0, lower=CONST["Tm0"] - 20))
+    rng = np.random.default_rng(0)
+    th = np.array([p.start for p in fixed.parameters])[None, :] \
+        * (1 + 1e-3 * rng.standard_normal((4, len(fixed.parameters))))
+    th_loose = np.insert(th, 3, CONST["Tm0"], axis=1)
+    assert loose.names[3] == "Tm0" and loose.names[4:] == fixed.names[3:]
+    for a, b in zip(fixed.basis(th), loose.basis(th_loose), strict=True):
+        np.testing.assert_allclose(a, b, rtol=1e-10, atol=1e-300)

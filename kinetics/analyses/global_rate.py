@@ -520,9 +520,9 @@ class _BatchedBasis:
                           np.exp(-np.clip(s.centres - s.conversion.hold_start, 0.0, None)
                                   / s.transient_tau) for s in specs]
         self.fixed = fixed
+        self.T_all = T_all = np.concatenate([self.T_iso if iso else np.zeros(0),
+                                             self.T_cool.ravel() if cool else np.zeros(0)])
         if fixed is not None:
-            T_all = np.concatenate([self.T_iso if iso else np.zeros(0),
-                                    self.T_cool.ravel() if cool else np.zeros(0)])
             ok = (T_all > fixed["T_inf"]) & (T_all < fixed["Tm0"])
             with np.errstate(all="ignore"):
                 dT = fixed["Tm0"] - T_all
@@ -534,9 +534,7 @@ class _BatchedBasis:
     def _rate(self, d):
         """K (m, N) on the isotherm temperatures followed by the padded cooling grids."""
         if self.fixed is None:
-            T_all = np.concatenate([self.T_iso if self.iso else np.zeros(0),
-                                    self.T_cool.ravel() if self.cool else np.zeros(0)])
-            return rate_constant(T_all, d)
+            return rate_constant(self.T_all, d)
         a = d[:, 1:2] + np.log(LN2) / d[:, 0:1]
         K = np.exp(a + self.lnK_T[None, :] - d[:, 2:3] * self.g_T[None, :])
         return np.where(np.isfinite(K), K, 0.0)
@@ -566,8 +564,7 @@ class _BatchedBasis:
                 th = np.zeros_like(Kc)
                 np.cumsum(inc, axis=-1, out=th[..., 1:])
                 idx = np.broadcast_to(self.edge_idx, (m, *self.edge_idx.shape))
-                th_e = np.take_along_axis(th, idx,
-                                          axis=-1)
+                th_e = np.take_along_axis(th, idx, axis=-1)
                 # X = 1 - exp(-theta^n) at the cell edges (Nakamura et al. 1972)
                 X["cool"] = -np.expm1(-np.power(th_e, n))
         out = []

@@ -96,6 +96,9 @@ def analyse_study(study: Study, *, seed: int = 0, executor=None, sample: bool = 
     if rate_on and executor is not None:
         # the longest jobs first, so both cores stay busy while the isotherms are fitted
         early = _submit_global_early(res, opts, executor, sample, fit_options, jobs)
+        if early and progress:
+            progress(f"one rate model K(T) per formulation ({len(early)}), started in the "
+                     "background (the slowest step)")
     cooling_job = None
     cool_runs = study.runs(kind="cooling")
     if cool_runs:
@@ -128,7 +131,8 @@ def analyse_study(study: Study, *, seed: int = 0, executor=None, sample: bool = 
         _crystallinity(res)
     if rate_on:
         if progress:
-            progress("one rate model K(T) per formulation (Nakamura-Hoffman-Lauritzen)")
+            progress("one rate model K(T) per formulation (Nakamura-Hoffman-Lauritzen)"
+                     + (": collecting" if early else ""))
         _global(res, opts, executor, sample, fit_options, early, jobs)
     if len(study.groups) > 1:
         _compare(res, opts)
@@ -492,7 +496,15 @@ class _JobCache:
             value = fn(*args)
             self.cache.put(label, key, value)
             return _Done(value)
-        return _Pending(executor.submit(fn, *args), lambda v: self.cache.put(label, key, v))
+        future = executor.submit(fn, *args)
+
+        def keep(f):
+            # as soon as the job is done, so a kill before its result is used loses nothing
+            if not f.cancelled() and f.exception() is None:
+                self.cache.put(label, key, f.result())
+
+        future.add_done_callback(keep)
+        return future
 
 
 class _Done:
@@ -501,18 +513,6 @@ class _Done:
 
     def result(self):
         return self.value
-
-
-class _Pending:
-    def __init__(self, future, keep):
-        self.future, self.keep, self.done = future, keep, False
-
-    def result(self):
-        value = self.future.result()
-        if not self.done:
-            self.keep(value)
-            self.done = True
-        return value
 
 
 def _job_key(args) -> str:

@@ -142,7 +142,8 @@ def test_cli_cluster_address_unreachable_is_one_line(tmp_path):
 
 def test_resume_keeps_the_cooling_analysis_and_rate_models(tmp_path, monkeypatch):
     """A second analysis with the same resume folder takes the cooling analysis and the
-    joint rate models from it (both are boobytrapped) and gives the same tables."""
+    joint rate models from it (both are boobytrapped) and gives the same tables, whether
+    the first ran them on an executor or in this process."""
     import warnings
 
     from kinetics import workflow
@@ -152,7 +153,12 @@ def test_resume_keeps_the_cooling_analysis_and_rate_models(tmp_path, monkeypatch
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")
         study = read_study(write_demo_study(tmp_path / "in", quick=True))
-        first = workflow.analyse_study(study, seed=3, sample=False, cache_dir=tmp_path / "c")
+        # first through an executor (jobs kept as they finish), then in this process
+        from concurrent.futures import ThreadPoolExecutor
+        with ThreadPoolExecutor(2) as ex:
+            first = workflow.analyse_study(study, seed=3, sample=False, executor=ex,
+                                           cache_dir=tmp_path / "c")
+        assert len(list((tmp_path / "c" / "jobs").glob("*.pkl"))) == 1 + len(study.groups)
 
         def boom(*a, **k):
             raise AssertionError("a finished study-level job was run again")

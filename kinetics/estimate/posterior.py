@@ -55,7 +55,8 @@ class Diagnostics:
         bulk of the ensemble.
     lagging_walkers : int
         Walkers whose mean log posterior over the kept chain stays far below the
-        rest (stuck in a poor region); non-zero means not converged.
+        rest (stuck in a poor region); they are left out of the draws, and
+        ``reason`` says so.
     """
 
     converged: bool

@@ -26,6 +26,12 @@ treating every run as exact gave intervals of n and Kg that missed the true
 values of invented data with 4 % scatter, because a few runs' offsets were read
 as temperature dependence.
 
+Calibration measured on invented replicate studies (4 isotherms and 4 cooling
+runs each, 4 % scatter, 20 replicates): the 95 % intervals covered the true n,
+Kg and rate level in 80, 75 and 80 % of them (10, 5 and 10 % without the
+offsets; all of 8 without scatter). They are still somewhat narrow, mainly
+because each isotherm's transient decay time is fixed at its own fit's value.
+
 * Isothermal holds: theta = K(T_hold) (t - t0) after the run's induction time
   t0, T_hold the median recorded sample temperature. Each hold is first fitted
   alone (Avrami heat-flow least squares, :func:`kinetics.analyses.isothermal.fit_isotherm`,

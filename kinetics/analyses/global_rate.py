@@ -237,15 +237,19 @@ def _cooling_spec(trace, conv, max_points, step, substeps, lead_points=60) -> Ru
     edges, y, block = _block_average(t_all[sel], q_all[sel], max_points)
     dT_cell = float(np.max(np.abs(np.diff(np.interp(edges, t_all, T_sample)))))
     s = int(min(16, max(int(substeps), np.ceil(dT_cell / _MAX_STEP_K))))
-    frac = np.arange(s) / s
-    fine = (edges[:-1, None] + np.diff(edges)[:, None] * frac[None, :]).ravel()
+    # sub-steps only where the event is; the baseline margins (X near 0 or 1) take one
+    cell_s = np.where((edges[1:] > w0) & (edges[:-1] < w1), s, 1)
+    starts = np.concatenate([[0], np.cumsum(cell_s)])
+    owner = np.repeat(np.arange(len(cell_s)), cell_s)
+    k_in = np.arange(starts[-1]) - starts[owner]
+    fine = edges[owner] + np.diff(edges)[owner] * k_in / cell_s[owner]
     fine = np.append(fine, edges[-1])
     lead = t_all[t_all < edges[0]]
     if len(lead) > lead_points:
         lead = np.linspace(t_all[0], edges[0], lead_points, endpoint=False)
     grid = np.concatenate([lead, fine])
     grid_T = np.interp(grid, t_all, T_sample)
-    idx = len(lead) + s * np.arange(len(edges))
+    idx = len(lead) + starts
     rate = float(b.get("beta_K_per_s", trace.info.rate))
     return RunSpec(run_id=trace.run_id, kind="cooling", edges=edges, y=y, t_ref=float(edges[-1]),
                    temperature=float("nan"), t0=float("nan"), grid=grid, grid_T=grid_T,

@@ -43,9 +43,9 @@ scatter, in all of 6.
   start of the preparation (``"preparation"``); on invented test data both fixed
   choices gave Kg intervals that missed the true value (the per-run t0 error is
   carried into the half-times), which is why t0 is fitted by default. With t0
-  fitted, the transient decay time is fitted too (as ln tau, log-uniform prior
-  of the run's own fit): fixed at its estimate, it made the joint n about 1.5 x
-  too narrow.
+  fitted, the transient decay time is fitted too (as ln tau, flat within a
+  factor of 3 of the run's own estimate, :data:`TAU_RANGE`): fixed at its
+  estimate, it made the joint n about 1.5 x too narrow.
 * Cooling runs: theta is a cumulative trapezoidal sum of K on the run's own
   grid from the start of the record (the melt), with the sample temperature
   the cooling preparation gives (recorded temperature plus its thermal-lag

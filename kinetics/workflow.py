@@ -616,11 +616,9 @@ def _write_figures(analysis: StudyAnalysis, out: Path, executor=None) -> list[Fi
                 return
         pending.append((name, _Done(render(fig))))
 
-    try:
-        _draw_figures(analysis, put, figures)
-    finally:
-        for name, job in pending:
-            safe_child(folder, name).write_bytes(job.result())
+    _draw_figures(analysis, put, figures)
+    for name, job in pending:
+        safe_child(folder, name).write_bytes(job.result())
     return written
 
 
